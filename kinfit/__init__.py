@@ -1,0 +1,54 @@
+"""kinfit: rate laws, orders and rate constants from whole time courses.
+
+The public names are re-exported here and imported on first use, so that
+``import kinfit`` (and ``kinfit --help``) stays fast::
+
+    import kinfit
+    exp = kinfit.load_experiment("demo/experiment.toml")
+    mech = kinfit.load_mechanism("demo/thiol_addition.toml")
+    result = kinfit.fit(exp, mech)
+    print(result.values, result.stderr)
+"""
+
+from importlib import import_module
+
+__version__ = "0.1.0"
+
+_EXPORTS = {
+    "KinfitError": "errors",
+    "KinfitWarning": "errors",
+    "Mechanism": "mechanism",
+    "Step": "mechanism",
+    "Parameter": "mechanism",
+    "load_mechanism": "mechanism",
+    "mechanism_from_text": "mechanism",
+    "Experiment": "data",
+    "Run": "data",
+    "Trace": "data",
+    "load_experiment": "data",
+    "simulate": "simulate",
+    "Trajectory": "simulate",
+    "residuals": "objective",
+    "log_likelihood": "objective",
+    "fit": "fit",
+    "FitResult": "fit",
+    "format_fit": "report",
+    "write_fit": "report",
+    "plot_traces": "plots",
+    "plot_residuals": "plots",
+    "plot_trajectory": "plots",
+}
+
+__all__ = sorted(_EXPORTS) + ["__version__"]
+
+
+def __getattr__(name):
+    if name in _EXPORTS:
+        value = getattr(import_module(f".{_EXPORTS[name]}", __name__), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'kinfit' has no attribute {name!r}")
+
+
+def __dir__():
+    return __all__

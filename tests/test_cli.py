@@ -1,0 +1,149 @@
+"""The command line: commands on the demo, and clear errors for bad input."""
+
+from __future__ import annotations
+
+import json
+import re
+import subprocess
+import sys
+
+import pytest
+from typer.testing import CliRunner
+
+from conftest import DEMO, FIRST_ORDER_MODEL, MODELS, SMALL_EXPERIMENT, SMALL_TRACES, write
+from kinfit.cli import app
+
+runner = CliRunner()
+
+
+def test_help_of_every_command_shows_an_example():
+    for command in ([], ["fit"], ["simulate"], ["demo"]):
+        result = runner.invoke(app, command + ["--help"])
+        assert result.exit_code == 0
+        assert "Example:" in result.output and "kinfit " in result.output
+
+
+def test_demo_command(tmp_path):
+    out = tmp_path / "demo"
+    result = runner.invoke(app, ["demo", "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert "rate = k [thiol]^" in result.output
+    assert "mM^-1." in result.output and " min^-1" in result.output   # k with its unit
+    assert "standard errors)" in result.output
+    data = json.loads((out / "result.json").read_text())
+    assert data["success"] and (out / "fit.png").exists() and (out / "inputs" / "traces.csv").exists()
+
+
+def test_fit_command_on_the_demo(tmp_path):
+    out = tmp_path / "fit"
+    result = runner.invoke(app, ["fit", str(DEMO / "experiment.toml"), "--model",
+                                 str(DEMO / "thiol_addition.toml"), "--out", str(out),
+                                 "--starts", "1"])
+    assert result.exit_code == 0, result.output
+    assert "Rate law" in result.output and "k " in result.output
+    data = json.loads((out / "result.json").read_text())
+    assert set(data["statistics"]) >= {"n_data", "n_params", "chisqr", "aic", "aicc", "bic"}
+
+
+def test_simulate_command(tmp_path):
+    out = tmp_path / "sim"
+    result = runner.invoke(app, ["simulate", str(MODELS / "consecutive.toml"), "-i", "A=1",
+                                 "--set", "k1=0.5", "--until", "20", "--points", "21",
+                                 "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    lines = (out / "simulation.csv").read_text().splitlines()
+    assert lines[0] == "time,A,B,C" and len(lines) == 22
+    assert (out / "simulation.png").exists()
+
+
+def test_simulate_bad_pairs(tmp_path):
+    result = runner.invoke(app, ["simulate", str(MODELS / "first_order.toml"), "-i", "A:1",
+                                 "--out", str(tmp_path / "x")])
+    assert result.exit_code == 2 and "expected NAME=NUMBER" in result.output
+    assert not (tmp_path / "x").exists()
+
+
+# ---------------------------------------------------------------- bad input
+
+GOOD_TRACES = SMALL_TRACES
+BAD_CASES = {
+    # name: (file to replace, its new text, message expected)
+    "missing data file": ("experiment.toml", SMALL_EXPERIMENT.replace("traces.csv", "nope.csv"),
+                          "data file 'nope.csv' not found"),
+    "species not in model": ("traces.csv", GOOD_TRACES.replace(",A,", ",Z,"),
+                             r"traces\.csv, line 2: species 'Z' \(run 'r1'\) is not in the model"),
+    "run not listed": ("traces.csv", GOOD_TRACES + "    r7,0,A,1\n",
+                       "run 'r7' is not listed"),
+    "non-numeric value": ("traces.csv", GOOD_TRACES.replace("0.37", "0,37x"),
+                          "not a CSV table|not a number"),
+    "text value": ("traces.csv", GOOD_TRACES.replace("0.37", "abc"), "'abc' is not a number"),
+    "nan value": ("traces.csv", GOOD_TRACES.replace("0.37", "NaN"), "expected a number"),
+    "infinite value": ("traces.csv", GOOD_TRACES.replace("0.37", "inf"),
+                       "not a finite number"),
+    "negative time": ("traces.csv", GOOD_TRACES.replace("r1,0,", "r1,-1,"), "negative time"),
+    "duplicated time": ("traces.csv", GOOD_TRACES.replace("r1,20,", "r1,10,"), "is repeated"),
+    "too few points": ("traces.csv", "run,time,species,value\nr1,0,A,1\nr1,5,A,0.8\n",
+                       "at least 3 are needed"),
+    "empty data file": ("traces.csv", "", "the data file is empty"),
+    "missing column": ("traces.csv", GOOD_TRACES.replace("species,", "kind,"),
+                       r"missing column\(s\) species"),
+    "unreadable unit": ("experiment.toml", SMALL_EXPERIMENT.replace('"M"', '"zorks"'),
+                        "cannot read the unit 'zorks'"),
+    "TOML syntax error": ("model.toml", FIRST_ORDER_MODEL.replace('"A -> P"', '"A -> P'),
+                          r"line 3, column \d+: not valid TOML"),
+    "min above max": ("model.toml", FIRST_ORDER_MODEL.replace("min = 0", "min = 1, max = 0.5"),
+                      r"min \(1\) is larger than max \(0\.5\)"),
+    "undeclared species": ("model.toml", FIRST_ORDER_MODEL.replace("k * [A]", "k * [A] * [cat]"),
+                           r"\[cat\] is in the rate law but in no reaction"),
+    "empty side": ("model.toml", FIRST_ORDER_MODEL.replace('"A -> P"', '"A -> "'),
+                   "nothing on the right side"),
+    "code in a rate law": ("model.toml", FIRST_ORDER_MODEL.replace(
+        '"k * [A]"', "'''__import__(\"os\").system(\"touch pwned\")'''"),
+        "unexpected character"),
+    "code in an exponent": ("model.toml", FIRST_ORDER_MODEL.replace(
+        '"k * [A]"', "'''k * [A]^(().__class__)'''"), "unexpected character"),
+}
+
+
+@pytest.mark.parametrize("case", sorted(BAD_CASES))
+def test_bad_input_gives_one_clear_line_and_exit_2(tmp_path, case):
+    write(tmp_path, "model.toml", FIRST_ORDER_MODEL)
+    write(tmp_path, "experiment.toml", SMALL_EXPERIMENT)
+    write(tmp_path, "traces.csv", GOOD_TRACES)
+    name, text, message = BAD_CASES[case]
+    write(tmp_path, name, text)
+    out = tmp_path / "out"
+    result = runner.invoke(app, ["fit", str(tmp_path / "experiment.toml"), "--model",
+                                 str(tmp_path / "model.toml"), "--out", str(out)])
+    assert result.exit_code == 2, result.output
+    errors = [line for line in result.output.splitlines() if line.startswith("error:")]
+    assert len(errors) == 1, result.output
+    assert re.search(message, errors[0]), errors[0]
+    assert "Traceback" not in result.output
+    assert not out.exists(), "nothing may be written on bad input"
+    assert not (tmp_path / "pwned").exists()
+
+
+def test_bad_input_does_not_touch_an_existing_output_folder(tmp_path):
+    write(tmp_path, "model.toml", FIRST_ORDER_MODEL)
+    write(tmp_path, "experiment.toml", SMALL_EXPERIMENT)
+    write(tmp_path, "traces.csv", "")
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "result.json").write_text("previous")
+    result = runner.invoke(app, ["fit", str(tmp_path / "experiment.toml"), "--model",
+                                 str(tmp_path / "model.toml"), "--out", str(out)])
+    assert result.exit_code == 2
+    assert (out / "result.json").read_text() == "previous"
+    assert [p.name for p in out.iterdir()] == ["result.json"]
+
+
+def test_console_script_exit_codes(tmp_path):
+    # A real process: exit code 2 and no traceback on stderr.
+    write(tmp_path, "model.toml", FIRST_ORDER_MODEL)
+    proc = subprocess.run([sys.executable, "-m", "kinfit.cli", "fit", str(tmp_path / "none.toml"),
+                           "--model", str(tmp_path / "model.toml")],
+                          capture_output=True, text=True)
+    assert proc.returncode == 2
+    assert proc.stderr.startswith("error: ") and "Traceback" not in proc.stderr
+    assert len(proc.stderr.strip().splitlines()) == 1

@@ -1,0 +1,113 @@
+"""Residuals, likelihood and information criteria against reference libraries."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+import statsmodels.api as sm
+from scipy.stats import norm
+
+from conftest import write
+from kinfit.data import load_experiment
+from kinfit.fit import fit
+from kinfit.mechanism import load_mechanism, mechanism_from_text
+from kinfit.objective import build_problem, information_criteria, log_likelihood, residuals
+
+
+def zero_order_case(folder, noise=""):
+    """A -> P at zero order with [A]0 fitted: [A] = A0 - k t is a straight line.
+
+    Seeded synthetic data; the reference answers come from statsmodels OLS.
+    """
+    rng = np.random.default_rng(7)
+    t = np.arange(0.0, 11.0)
+    y = 1.0 - 0.05 * t + rng.normal(0.0, 0.01, t.size)
+    rows = "\n".join(f"r1,{ti:g},A,{yi:.6f}" for ti, yi in zip(t, y))
+    write(folder, "traces.csv", "run,time,species,value\n" + rows + "\n")
+    write(folder, "e.toml", f"""
+        [data]
+        file = "traces.csv"
+        [[runs]]
+        name = "r1"
+        initial = {{ A = {{ value = 0.9, vary = true, min = 0 }} }}
+        {noise}
+    """)
+    mech = mechanism_from_text('[[steps]]\nreaction = "A -> P"\nrate = "k"\n'
+                               '[parameters]\nk = { value = 0.01, min = 0 }\n')
+    y = np.round(y, 6)
+    return load_experiment(folder / "e.toml"), mech, t, y
+
+
+def test_fit_equals_ordinary_least_squares(tmp_path):
+    # Reference: statsmodels OLS of [A] on (1, t) — same Gaussian likelihood with
+    # unknown σ, constants included (statsmodels documentation: OLS.loglike,
+    # RegressionResults.aic/bic count the regression parameters, not σ).
+    exp, mech, t, y = zero_order_case(tmp_path)
+    ols = sm.OLS(y, sm.add_constant(t)).fit()
+    result = fit(exp, mech, starts=1)
+    assert result.values["A0_r1"] == pytest.approx(ols.params[0], rel=1e-7)
+    assert result.values["k"] == pytest.approx(-ols.params[1], rel=1e-6)
+    assert result.stderr["A0_r1"] == pytest.approx(ols.bse[0], rel=1e-5)
+    assert result.stderr["k"] == pytest.approx(ols.bse[1], rel=1e-5)
+    assert result.log_likelihood == pytest.approx(ols.llf, abs=1e-8)
+    assert result.aic == pytest.approx(ols.aic, abs=1e-7)
+    assert result.bic == pytest.approx(ols.bic, abs=1e-7)
+    assert result.chi2 == pytest.approx(ols.ssr, rel=1e-9)
+    # lmfit's convention N ln(χ²/N) + 2p differs by the constant N (ln 2π + 1)
+    n = result.n_points
+    lmfit_aic = n * math.log(result.chi2 / n) + 2 * result.n_free
+    assert result.aic - lmfit_aic == pytest.approx(n * (math.log(2 * math.pi) + 1), rel=1e-12)
+
+
+def test_aicc_formula():
+    # Hurvich & Tsai (1989): AICc = AIC + 2p(p+1)/(N-p-1)
+    crit = information_criteria(-10.0, 20, 3)
+    assert crit["aic"] == 26.0
+    assert crit["aicc"] == pytest.approx(26.0 + 2 * 3 * 4 / 16)
+    assert crit["bic"] == pytest.approx(20.0 + 3 * math.log(20))
+    assert information_criteria(-10.0, 4, 3)["aicc"] == math.inf
+
+
+def test_declared_noise_likelihood_matches_scipy(tmp_path):
+    # Reference: scipy.stats.norm.logpdf summed over the points.
+    exp, mech, t, y = zero_order_case(tmp_path, noise="[noise]\ndefault = { absolute = 0.02 }")
+    values = {"k": 0.05, "A0_r1": 1.0}
+    model = 1.0 - 0.05 * t
+    assert log_likelihood(mech, exp, values) == pytest.approx(
+        norm.logpdf(y, loc=model, scale=0.02).sum(), rel=1e-9)
+    np.testing.assert_allclose(residuals(mech, exp, values), (model - y) / 0.02, rtol=1e-7,
+                               atol=1e-7)
+
+
+def test_problem_layout_and_batch(small):
+    exp = load_experiment(small["experiment"])
+    mech = load_mechanism(small["model"])
+    problem = build_problem(mech, exp)
+    assert problem.names == ("k",)
+    rows = problem.values_array(np.array([[0.05], [0.06]]))
+    res = problem.residuals(rows)
+    assert res.shape == (2, 4)
+    t = np.array([0, 10, 20, 30.0])
+    expected = np.exp(-0.06 * t) - np.array([1.0, 0.6, 0.37, 0.22])
+    np.testing.assert_allclose(res[1], expected, rtol=1e-7, atol=1e-9)
+
+
+def test_time_offset_shifts_the_model(files):
+    files("e.toml", """
+        [data]
+        file = "traces.csv"
+        [[runs]]
+        name = "r1"
+        initial = { A = 1.0 }
+        time_offset = { value = 2.0, vary = false }
+    """)
+    files("traces.csv", "run,time,species,value\nr1,0,A,0.9\nr1,10,A,0.5\nr1,20,A,0.3\n")
+    exp = load_experiment(files.folder / "e.toml")
+    mech = mechanism_from_text('[[steps]]\nreaction = "A -> P"\nrate = "k*[A]"\n'
+                               '[parameters]\nk = 0.05\n')
+    res = residuals(mech, exp)
+    # [Atkins] first order: model at data time t is A0 exp(-k (t + t0))
+    model = np.exp(-0.05 * (np.array([0, 10, 20.0]) + 2.0))
+    np.testing.assert_allclose(res, model - [0.9, 0.5, 0.3], rtol=1e-7, atol=1e-9)
