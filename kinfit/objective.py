@@ -107,6 +107,22 @@ class Problem:
                               f"({', '.join(self.names)}), got {arr.shape[1]}")
         return arr
 
+    def rate_arrays(self, values):
+        """Rate constants and orders of every run for every parameter set.
+
+        Parameters
+        ----------
+        values : ndarray [n_sets, n_params]
+
+        Returns
+        -------
+        list of (k [n_sets, n_directions], orders [n_sets, n_directions, n_species])
+            One pair per run. Without temperature dependence all runs share
+            one pair.
+        """
+        shared = self.mechanism.rate_arrays(values[:, :self.n_model])
+        return [shared] * len(self.experiment.runs)
+
     def run_inputs(self, values, times=None):
         """Starting concentrations and model times of every run.
 
@@ -152,7 +168,7 @@ class Problem:
         """
         values = self.values_array(values)
         conc0, model_times = self.run_inputs(values, times)
-        conc, ok, info = simulate_runs(self.mechanism, values[:, :self.n_model], conc0,
+        conc, ok, info = simulate_runs(self.mechanism, self.rate_arrays(values), conc0,
                                        model_times, method=self.method, rtol=self.rtol,
                                        atol=self.atol, max_rhs=max_rhs or self.max_rhs)
         return conc, ok, info

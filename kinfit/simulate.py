@@ -217,15 +217,18 @@ def initial_array(mechanism, initial):
     return conc0
 
 
-def simulate_runs(mechanism, values, conc0, times, *, method="LSODA", rtol=RTOL, atol=ATOL,
-                  max_rhs=MAX_RHS_CALLS):
+def simulate_runs(mechanism, rates_by_run, conc0, times, *, method="LSODA", rtol=RTOL,
+                  atol=ATOL, max_rhs=MAX_RHS_CALLS):
     """Concentrations of every run under every parameter set.
 
     Parameters
     ----------
     mechanism : Mechanism
-    values : ndarray [n_sets, n_params]
-        Model parameter values (order of ``mechanism.parameter_names``).
+        Supplies the stoichiometry and which species gate each direction.
+    rates_by_run : sequence of (k, orders), one per run
+        k [n_sets, n_directions] and orders [n_sets, n_directions, n_species]
+        for the run (see :meth:`Mechanism.rate_arrays`); runs at different
+        temperatures may have different rate constants.
     conc0 : ndarray [n_sets, n_runs, n_species]
         Starting concentrations.
     times : sequence of ndarray, one per run, each [n_sets, n_times_run]
@@ -240,15 +243,13 @@ def simulate_runs(mechanism, values, conc0, times, *, method="LSODA", rtol=RTOL,
     info : Integration
         Messages and work counts (``conc`` field not filled).
     """
-    values = np.atleast_2d(values)
-    n_sets, n_runs = conc0.shape[0], conc0.shape[1]
-    k, orders = mechanism.rate_arrays(values)
+    n_sets = conc0.shape[0]
     # One integration per run, stacking the parameter sets: sets of one run
     # (finite-difference neighbours, sampler walkers) change on similar time
     # scales, whereas different runs may not, and a stacked integrator must
     # resolve every system's fastest moments.
     conc, ok, n_rhs, message = [], np.ones(n_sets, dtype=bool), 0, ""
-    for r, t in enumerate(times):
+    for r, (t, (k, orders)) in enumerate(zip(times, rates_by_run)):
         t = np.clip(np.broadcast_to(t, (n_sets, np.shape(t)[-1])), 0.0, None)
         grid = np.unique(t)
         result = integrate(mechanism.stoichiometry, mechanism.present, conc0[:, r], k, orders,
