@@ -348,8 +348,7 @@ def _row_dict(row):
         "evidence_aicc": row.evidence_aicc,
         "evidence_bic": row.evidence_bic,
         "success": fit_.success,
-        "rate_laws": [{k: v for k, v in law.items() if k != "rate_law"}
-                      for law in fit_.rate_laws()],
+        "rate_laws": fit_.rate_laws(),
         "parameters": {n: {"value": v, "stderr": fit_.stderr.get(n),
                            "unit": fit_.units.get(n), "role": fit_.roles.get(n),
                            "fitted": n in fit_.free_names}
@@ -592,11 +591,15 @@ def _nested_tests(rows, n_points):
         for j, large in enumerate(rows):
             if i == j or small.n_params > large.n_params:
                 continue
-            if not _nests(structures[i], structures[j]):
-                continue
             if small.n_params == large.n_params:
-                if i < j and _nests(structures[j], structures[i]):
+                # the same model written twice fits the same data equally well, so
+                # only pairs with equal χ² need the (costlier) structural check
+                if i < j and math.isclose(small.chisqr, large.chisqr, rel_tol=1e-6) and \
+                        _nests(structures[i], structures[j]) and \
+                        _nests(structures[j], structures[i]):
                     equivalent.append((small.name, large.name))
+                continue
+            if not _nests(structures[i], structures[j]):
                 continue
             extra = large.n_params - small.n_params
             df2 = n_points - large.n_params
