@@ -1228,6 +1228,8 @@ def rank(experiment, mechanisms, orders=None, *, starts=DEFAULT_STARTS,
                          [c.template for c in candidates])
     if cross_check:
         check = _cross_check(comparison, experiment, max_conversion)
-        warnings = comparison.warnings + (check.warnings if check else ())
+        warnings = comparison.warnings + (check.warnings if check else (
+            "no candidate has a single irreversible step, so the initial-rates cross-check "
+            "was skipped",))
         comparison = replace(comparison, cross_check=check, warnings=warnings)
     return comparison

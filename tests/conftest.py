@@ -68,18 +68,6 @@ def small(files):
     return {"model": model, "experiment": experiment, "folder": files.folder}
 
 
-POWER_LAW_AB = """
-    name = "A + B -> P, free orders"
-    [[steps]]
-    reaction = "A + B -> P"
-    rate = "k * [A]^m * [B]^n"
-    [parameters]
-    k = { value = 0.1, min = 0 }
-    m = { value = 1.5, min = 0, max = 3 }
-    n = { value = 1.5, min = 0, max = 3 }
-"""
-
-
 def synthetic_power_law(folder, seed, truth=(0.02, 1.0, 2.0), relative=0.01,
                         absolute=1e-4, times=None, starts=None):
     """Seeded synthetic A + B -> P data, rate k [A]^m [B]^n, [A] and [P] measured.
@@ -90,7 +78,7 @@ def synthetic_power_law(folder, seed, truth=(0.02, 1.0, 2.0), relative=0.01,
     Returns
     -------
     (Experiment, Mechanism)
-        The mechanism is the free-order model above.
+        The mechanism is models/power_law_two.toml (free orders m, n in 0..3).
     """
     import numpy as np
 
@@ -100,8 +88,8 @@ def synthetic_power_law(folder, seed, truth=(0.02, 1.0, 2.0), relative=0.01,
 
     k, m, n = truth
     folder = Path(folder)
-    model = write(folder, "model.toml", POWER_LAW_AB)
-    mech = load_mechanism(model)
+    mech = load_mechanism(MODELS / "power_law_two.toml")
+    write(folder, "model.toml", (MODELS / "power_law_two.toml").read_text(encoding="utf-8"))
     rng = np.random.default_rng(seed)
     times = np.linspace(0, 100, 21) if times is None else np.asarray(times, dtype=float)
     starts = starts or {"r1": (1.0, 1.0), "r2": (2.0, 1.0), "r3": (1.0, 2.0),

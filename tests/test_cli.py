@@ -203,3 +203,13 @@ def test_rank_needs_two_candidates_and_a_known_criterion(rank_inputs):
                                         "hqic"])
     assert result.exit_code == 2 and "unknown criterion 'hqic'" in result.output
     assert not (rank_inputs / "x").exists()
+
+
+def test_progress_bar_counts_fits():
+    from kinfit.cli import _ProgressBar
+
+    bar = _ProgressBar("fitting candidates")
+    for done in (1, 2, 3):
+        bar(done, 3, f"candidate {done}")
+    assert bar.bar.length == 3 and bar.bar.pos == 3
+    bar.close()

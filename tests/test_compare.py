@@ -371,3 +371,22 @@ def test_compare_refuses_fits_to_different_data(linear_pair, small):
         compare([comparison.best.fit, other])
     with pytest.raises(KinfitError, match="at least two candidates"):
         compare([other])
+
+
+def test_reversible_candidates_skip_the_cross_check(small):
+    # A <=> P against the same with the back reaction switched off (k2 fixed at
+    # its bound 0): nested, on the boundary, and no one-step irreversible
+    # candidate for the initial-rates method.
+    from kinfit.data import load_experiment
+
+    exp = load_experiment(small["experiment"])
+    both = mechanism_from_text('[[steps]]\nreaction = "A <=> P"\nrate = "k * [A]"\n'
+                               'reverse_rate = "k2 * [P]"\n[parameters]\nk = 0.05\n'
+                               'k2 = 0.001\n')
+    result = rank(exp, [both, with_fixed(both, {"k2": 0.0}, name="forward only")], starts=1,
+                  workers=1)
+    assert result.cross_check is None
+    assert any("cross-check was skipped" in w for w in result.warnings)
+    (test,) = result.nested
+    assert test.smaller == "forward only" and test.on_boundary
+    assert "conservative" in test.note
