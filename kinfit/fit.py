@@ -286,7 +286,7 @@ class _Evaluator:
     def __init__(self, problem, layout):
         self.problem, self.layout = problem, layout
         self.evaluations = self.integrations = self.failed = 0
-        self.n_compiled = self.n_implicit = 0
+        self.n_compiled = self.n_stiff = self.n_implicit = 0
         self._cache_u = None
         self._cache = None
 
@@ -295,6 +295,7 @@ class _Evaluator:
         self.evaluations += n_sets
         self.failed += int((~ok).sum())
         self.n_compiled += info.n_compiled
+        self.n_stiff += info.n_stiff
         self.n_implicit += info.n_implicit
 
     def residuals(self, u, max_rhs=None, fallback=True):
@@ -537,8 +538,11 @@ def _integrator_text(method, evaluator):
     if method not in ("auto", "compiled"):
         return method
     text = "compiled Dormand-Prince 5(4)"
+    if evaluator.n_stiff:
+        text += (f"; compiled Rosenbrock 4(3) for {evaluator.n_stiff} stiff run "
+                 f"evaluation(s)")
     if evaluator.n_implicit:
-        text += f"; LSODA for {evaluator.n_implicit} stiff run evaluation(s)"
+        text += f"; LSODA for {evaluator.n_implicit} run evaluation(s)"
     return text
 
 
@@ -566,6 +570,7 @@ def _curves(problem, values_row, n=200):
              for r, run in enumerate(problem.experiment.runs)]
     conc, ok, info = problem.simulate(values_row, times=grids)
     method = problem.method if problem.method not in ("auto", "compiled") else (
-        "LSODA" if info.n_implicit else "compiled Dormand-Prince 5(4)")
+        "LSODA" if info.n_implicit else "compiled Rosenbrock 4(3)" if info.n_stiff
+        else "compiled Dormand-Prince 5(4)")
     return tuple(Trajectory(g, c[0], problem.mechanism.species, bool(ok[0]), info.message,
                             method) for g, c in zip(grids, conc))

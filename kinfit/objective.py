@@ -218,26 +218,28 @@ class Problem:
         lay = self._layout
         n_sets, n_runs = values.shape[0], len(self._times)
         rates = self.rate_arrays(values)
-        k = np.stack([kr for kr, _ in rates], axis=1).reshape(n_sets * n_runs, -1)
-        orders = np.stack([er for _, er in rates], axis=1)
-        orders = orders.reshape(n_sets * n_runs, *orders.shape[2:])
+        if all(r is rates[0] for r in rates):     # one (k, orders) pair shared by all runs
+            k = np.repeat(rates[0][0], n_runs, axis=0)
+            orders = np.repeat(rates[0][1], n_runs, axis=0)
+        else:
+            k = np.stack([kr for kr, _ in rates], axis=1).reshape(n_sets * n_runs, -1)
+            orders = np.stack([er for _, er in rates], axis=1)
+            orders = orders.reshape(n_sets * n_runs, *orders.shape[2:])
         conc0 = np.repeat(self._conc0[None], n_sets, axis=0)
         for r, s, p in self._initial_map:
             conc0[:, r, s] = values[:, p]
-        t_out = np.tile(lay["t_base"], n_sets)
+        t_out, out_start, rows = _grid_for(lay, n_sets)
         if lay["has_offsets"]:
             shift = np.zeros((n_sets, n_runs))
             for r, p in enumerate(self._offset_map):
                 if p >= 0:
                     shift[:, r] = values[:, p]
             t_out = t_out + np.repeat(shift.ravel(), np.tile(lay["sizes"], n_sets))
-        out_start = np.concatenate([[0], np.cumsum(np.tile(lay["sizes"], n_sets))])
         sol = integrate_flat(self.mechanism.stoichiometry, self.mechanism.present,
                              conc0.reshape(n_sets * n_runs, -1), k, orders, t_out, out_start,
                              method=self.method, rtol=self.rtol, atol=self.atol,
                              max_rhs=max_rhs or self.max_rhs,
                              sens=lay["sens"] if jacobian else None, fallback=fallback)
-        rows = (np.arange(n_sets)[:, None] * lay["n_out"] + lay["point_out"][None, :])
         species = self.observation.species_index
         pred = sol.conc[rows, species[None, :]]
         ok = sol.ok.reshape(n_sets, n_runs).all(axis=1)
@@ -375,6 +377,20 @@ def build_problem(mechanism, experiment, method="auto"):
                    _times=observation.run_times,
                    _layout=_flat_layout(mechanism, observation, len(parameters), initial_map,
                                         offset_map))
+
+
+def _grid_for(layout, n_sets):
+    """Output times, output starts and point rows for `n_sets` parameter sets (memoised)."""
+    key = ("grid", n_sets)
+    if key not in layout:
+        sizes = np.tile(layout["sizes"], n_sets)
+        layout[key] = (np.tile(layout["t_base"], n_sets),
+                       np.concatenate([[0], np.cumsum(sizes)]),
+                       np.arange(n_sets)[:, None] * layout["n_out"] + layout["point_out"][None, :])
+        if len(layout) > 64:                     # keep the memo small
+            for old in [k for k in layout if isinstance(k, tuple)][:32]:
+                del layout[old]
+    return layout[key]
 
 
 def _flat_layout(mechanism, observation, n_params, initial_map, offset_map):

@@ -25,14 +25,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .compiled import AVAILABLE, OK, integrate_batch
+from .compiled import AVAILABLE, OK, integrate_batch, integrate_stiff
 from .errors import KinfitError
 from .mechanism import jacobian, rhs
 
 __all__ = ["Trajectory", "Integration", "FlatSolution", "integrate", "integrate_flat",
            "simulate", "simulate_runs", "initial_array", "RTOL", "ATOL", "MAX_RHS_CALLS"]
 
-RTOL = 1e-9
+RTOL = 1e-8
 ATOL = 1e-12
 MAX_RHS_CALLS = 50_000
 _METHODS = ("auto", "compiled", "LSODA", "BDF", "Radau", "RK45", "DOP853")
@@ -234,9 +234,9 @@ class FlatSolution:
     ok : ndarray [n_sys] of bool
     n_rhs : int
         Right-hand-side evaluations.
-    n_compiled, n_implicit : int
-        Systems finished by the compiled explicit integrator, and by the
-        implicit (solve_ivp) integrator.
+    n_compiled, n_stiff, n_implicit : int
+        Systems finished by the compiled explicit integrator, by the compiled
+        Rosenbrock method (stiff), and by solve_ivp.
     message : str
     """
 
@@ -245,6 +245,7 @@ class FlatSolution:
     ok: np.ndarray
     n_rhs: int
     n_compiled: int
+    n_stiff: int
     n_implicit: int
     message: str
 
@@ -310,8 +311,10 @@ def integrate_flat(stoichiometry, present, conc0, k, orders, t_out, out_start, *
         System i's outputs are ``t_out[out_start[i]:out_start[i + 1]]``.
     method : {"auto", "compiled", "LSODA", "BDF", "Radau", "RK45", "DOP853"}
         "auto" runs the compiled Dormand–Prince 5(4) integrator and hands the
-        systems it finds stiff to LSODA; "compiled" does not hand them over
-        (they fail); the others use :func:`scipy.integrate.solve_ivp` only.
+        systems it finds stiff to the compiled Rosenbrock 4(3) method (and
+        those to LSODA if it too gives up); "compiled" does not hand them
+        over (they fail); the others use :func:`scipy.integrate.solve_ivp`
+        only.
     rtol, atol : float
         As in :func:`integrate`.
     sens : tuple (kind, direction, species) of int arrays, optional
@@ -348,28 +351,40 @@ def integrate_flat(stoichiometry, present, conc0, k, orders, t_out, out_start, *
         todo = range(n_sys)
         implicit_method = "LSODA" if method in ("auto", "compiled") else method
     message = "ok"
-    n_implicit = 0
+    n_implicit = n_stiff = 0
     for i in todo:
         lo, hi = out_start[i], out_start[i + 1]
-        c, s_i, calls, msg = _implicit_one(stoichiometry, present, conc0[i], k[i], orders[i],
-                                           t_out[lo:hi], implicit_method, rtol, atol, max_rhs,
-                                           sens)
-        n_rhs += calls
-        n_implicit += 1
+        c = None
+        if compiled_ok:      # the compiled Rosenbrock method first, LSODA as a last resort
+            c, s_i, status, calls = integrate_stiff(
+                stoichiometry, present, conc0[i], k[i], orders[i], t_out[lo:hi], rtol=rtol,
+                atol=atol * scale[i], eps=1e-9 * scale[i], sens=sens,
+                max_steps=max(1000, max_rhs // 3))
+            n_rhs += calls
+            if status != OK:
+                c = None
+            else:
+                n_stiff += 1
         if c is None:
-            ok[i] = False
-            message = msg
-            conc[lo:hi] = np.nan
-            continue
+            c, s_i, calls, msg = _implicit_one(stoichiometry, present, conc0[i], k[i],
+                                               orders[i], t_out[lo:hi], implicit_method, rtol,
+                                               atol, max_rhs, sens)
+            n_rhs += calls
+            n_implicit += 1
+            if c is None:
+                ok[i] = False
+                message = msg
+                conc[lo:hi] = np.nan
+                continue
         ok[i] = True
         conc[lo:hi] = c
         if s_i is not None:
             sens_out[lo:hi] = s_i
-    n_compiled = int(ok.sum()) - n_implicit if compiled_ok else 0
+    n_compiled = int(ok.sum()) - n_implicit - n_stiff if compiled_ok else 0
     if not ok.all() and message == "ok":
         message = "the explicit integrator could not finish some systems (stiff)"
     return FlatSolution(conc, sens_out if n_sens else None, ok, n_rhs, max(n_compiled, 0),
-                        n_implicit, message)
+                        n_stiff, n_implicit, message)
 
 
 def simulate_runs(mechanism, rates_by_run, conc0, times, *, method="auto", rtol=RTOL,
@@ -470,5 +485,6 @@ def simulate(mechanism, initial, values=None, times=None, *, method="auto", rtol
     sol = integrate_flat(mechanism.stoichiometry, mechanism.present, conc0[None], k, orders,
                          times, np.array([0, times.size]), method=method, rtol=rtol, atol=atol)
     used = method if method not in ("auto", "compiled") else (
-        "LSODA" if sol.n_implicit else "compiled Dormand-Prince 5(4)")
+        "LSODA" if sol.n_implicit else "compiled Rosenbrock 4(3)" if sol.n_stiff
+        else "compiled Dormand-Prince 5(4)")
     return Trajectory(times, sol.conc, mechanism.species, bool(sol.ok[0]), sol.message, used)

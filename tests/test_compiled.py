@@ -9,7 +9,8 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from conftest import MODELS
-from kinfit.compiled import KIND_INITIAL, KIND_LOG_K, KIND_ORDER, OK, STIFF, integrate_batch
+from kinfit.compiled import (KIND_INITIAL, KIND_LOG_K, KIND_ORDER, OK, STIFF, integrate_batch,
+                             integrate_stiff)
 from kinfit.mechanism import load_mechanism, mechanism_from_text
 from kinfit.simulate import integrate_flat, simulate
 
@@ -76,7 +77,7 @@ def test_sensitivities_match_central_differences():
     np.testing.assert_allclose(s, np.stack(fd, axis=-1), rtol=1e-5, atol=1e-8)
 
 
-def test_stiff_system_is_detected_and_handed_to_lsoda():
+def test_stiff_system_is_detected_and_handed_to_the_implicit_method():
     mech = load_mechanism(MODELS / "pre_equilibrium.toml")
     values = [1e5, 1e4, 0.1]
     y0 = [1.0, 0.5, 0.0, 0.0]
@@ -85,7 +86,7 @@ def test_stiff_system_is_detected_and_handed_to_lsoda():
     k, orders = mech.rate_arrays(np.array(values))
     sol = integrate_flat(mech.stoichiometry, mech.present, np.array([y0]), k, orders,
                          np.linspace(0, 60, 7), np.array([0, 7]))
-    assert sol.ok[0] and sol.n_implicit == 1 and sol.n_compiled == 0
+    assert sol.ok[0] and sol.n_stiff == 1 and sol.n_compiled == 0 and sol.n_implicit == 0
     ref = integrate_flat(mech.stoichiometry, mech.present, np.array([y0]), k, orders,
                          np.linspace(0, 60, 7), np.array([0, 7]), method="Radau")
     np.testing.assert_allclose(sol.conc, ref.conc, rtol=1e-6, atol=1e-10)
@@ -105,3 +106,35 @@ def test_many_systems_each_keep_their_own_steps():
     # [Atkins] first order: A = A0 exp(-k t)
     np.testing.assert_allclose(y[:, 0], np.exp(-np.repeat(ks[:, 0], 11) * np.tile(t, 3)),
                                rtol=1e-7, atol=1e-12)
+
+
+def test_rosenbrock_first_order_and_convergence_order():
+    # [Atkins] first order A = A0 exp(-k t); the Rosenbrock pair is of order 4
+    # (Hairer & Wanner, Solving ODEs II, IV.7): 100x tighter tolerance costs
+    # about 100^(1/4) ~ 3x more steps.
+    mech = load_mechanism(MODELS / "first_order.toml")
+    k, orders = mech.rate_arrays(np.array([1.0]))
+    calls = []
+    for rtol in (1e-6, 1e-8):
+        y, _, status, n_rhs = integrate_stiff(mech.stoichiometry, mech.present, [1.0, 0.0], k[0],
+                                              orders[0], np.array([0.0, 5.0]), rtol=rtol,
+                                              atol=1e-14, eps=1e-9)
+        assert status == OK
+        assert y[1, 0] == pytest.approx(math.exp(-5.0), rel=100 * rtol)
+        calls.append(n_rhs)
+    assert 2.0 < calls[1] / calls[0] < 5.0
+
+
+def test_rosenbrock_half_order_runs_out():
+    # [Laidler] n = 0.5, A0 = 1, k = 0.1: A = (1 - 0.05 t)^2 until t_end = 20 s, then 0
+    mech = load_mechanism(MODELS / "power_law_one.toml")
+    k, orders = mech.rate_arrays(np.array([0.1, 0.5]))
+    t = np.array([0.0, 5.0, 10.0, 19.0, 25.0, 60.0])
+    y, s, status, _ = integrate_stiff(mech.stoichiometry, mech.present, [1.0, 0.0], k[0],
+                                      orders[0], t, rtol=1e-9, atol=1e-13, eps=1e-9,
+                                      sens=(np.array([KIND_LOG_K]), np.array([0]), np.array([0])))
+    assert status == OK
+    np.testing.assert_allclose(y[:, 0], np.where(t < 20, (1 - 0.05 * t) ** 2, 0.0), atol=1e-8)
+    # d[A]/d ln k = -2 (1 - 0.05 t)(0.05 t) before t_end, 0 after (differentiating the closed form)
+    np.testing.assert_allclose(s[:, 0, 0], np.where(t < 20, -2 * (1 - 0.05 * t) * 0.05 * t, 0.0),
+                               atol=1e-6)
