@@ -97,8 +97,10 @@ def format_fit(result, cautions=True):
                f"χ²/(N−p) = {result.reduced_chi2:.3g} ({noise})")
     out.append(f"     AIC = {result.aic:.6g}, AICc = {result.aicc:.6g}, BIC = {result.bic:.6g}")
     out.append(f"     {result.starts_at_best} of {result.starts} starting point(s) reached the "
-               f"best fit; {result.n_integrations} integrations ({result.method}); "
-               f"{'converged' if result.success else 'NOT converged'}")
+               f"best fit; {'converged' if result.success else 'NOT converged'}; "
+               f"{result.n_integrations} integrations")
+    out += textwrap.wrap(f"integrators: {result.method}", 88, initial_indent="     ",
+                         subsequent_indent="       ")
     if result.correlation is not None:
         strong = []
         names = result.free_names
