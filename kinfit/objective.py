@@ -34,6 +34,7 @@ import numpy as np
 from .errors import KinfitError
 from .observables import build_observation, observe
 from .simulate import MAX_RHS_CALLS, RTOL, ATOL, simulate_runs
+from .temperature import join_temperatures
 
 __all__ = ["Problem", "build_problem", "residuals", "log_likelihood",
            "information_criteria", "FAILED_RESIDUAL"]
@@ -57,6 +58,9 @@ class Problem:
         and time offset, in that order.
     method : str
         Integrator passed to :func:`kinfit.simulate.integrate`.
+    temperature : TemperatureLayout or None
+        Each run's temperature group and T_ref, when the model's rate
+        constants depend on temperature (see :mod:`kinfit.temperature`).
     """
 
     mechanism: object
@@ -67,6 +71,7 @@ class Problem:
     rtol: float = RTOL
     atol: float = ATOL
     max_rhs: int = MAX_RHS_CALLS
+    temperature: object = None
     _conc0: np.ndarray = field(default=None, repr=False)
     _initial_map: tuple = field(default=(), repr=False)
     _offset_map: tuple = field(default=(), repr=False)
@@ -118,8 +123,12 @@ class Problem:
         -------
         list of (k [n_sets, n_directions], orders [n_sets, n_directions, n_species])
             One pair per run. Without temperature dependence all runs share
-            one pair.
+            one pair; with it, runs at one temperature share one.
         """
+        if self.temperature is not None:
+            groups = [self.mechanism.rate_arrays(rows) for rows in
+                      self.temperature.group_values(values[:, :self.n_model])]
+            return [groups[g] for g in self.temperature.run_group]
         shared = self.mechanism.rate_arrays(values[:, :self.n_model])
         return [shared] * len(self.experiment.runs)
 
@@ -238,8 +247,16 @@ def build_problem(mechanism, experiment, method="LSODA"):
             parameters.append(_unique(run.time_offset, names, experiment))
         else:
             offset_map.append(-1)
+    temperature = None
+    if mechanism.temperature is not None:
+        temperature = join_temperatures(
+            mechanism.temperature, mechanism.parameter_names,
+            [run.temperature for run in experiment.runs],
+            {n: p.vary for n, p in mechanism.parameters.items()}, experiment.source,
+            [run.name for run in experiment.runs])
     return Problem(mechanism=mechanism, experiment=experiment, observation=observation,
-                   parameters=tuple(parameters), method=method, _conc0=conc0,
+                   parameters=tuple(parameters), method=method, temperature=temperature,
+                   _conc0=conc0,
                    _initial_map=tuple(initial_map), _offset_map=tuple(offset_map),
                    _times=observation.run_times)
 
