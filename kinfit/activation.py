@@ -35,7 +35,7 @@ import numpy as np
 from .errors import KinfitError
 from .temperature import (ARRHENIUS, ENERGY_UNIT, STANDARD_TEMPERATURE, linear_forms,
                           ln_rate_form, reference_temperature)
-from .units import conversion_factor
+from .units import conversion_factor, rate_constant_unit
 
 __all__ = ["Estimate", "RateAt", "Activation", "activation_parameters", "with_posterior",
            "with_profile", "si_factor", "run_temperatures", "interval_quantile", "LABELS", "UNITS"]
@@ -143,6 +143,8 @@ class Activation:
         Covariance of (ln k_ref, E) from the fit.
     si_factor : float or None
         k in (mol/L)^(1-n) s^-1 per k in the experiment's units.
+    si_unit : str or None
+        That unit written out, e.g. ``M^-1 s^-1``.
     level : float
         Coverage of the intervals (0.95).
     quantile : float
@@ -162,6 +164,7 @@ class Activation:
     center: tuple
     covariance: np.ndarray | None
     si_factor: float | None
+    si_unit: str | None
     level: float
     quantile: float
     notes: tuple = ()
@@ -346,7 +349,9 @@ def activation_parameters(result, level=0.95):
             constant=law.constant, law=law.law, energy=law.energy, reference=reference,
             kappa=spec.kappa, unit=result.units.get(law.constant), estimates=(),
             rates=(), temperature_range=(float(temps[0]), float(temps[-1])), center=center,
-            covariance=covariance, si_factor=factor, level=level, quantile=quantile,
+            covariance=covariance, si_factor=factor,
+            si_unit=None if factor is None else rate_constant_unit("M", "s", order),
+            level=level, quantile=quantile,
             notes=tuple(notes))
         estimates = _estimates(forms, center, covariance, quantile,
                                "Ea" if law.law == ARRHENIUS else "dH")

@@ -119,9 +119,8 @@ def extrapolation_flags(fitted, initial, temperature=None, concentration_unit=""
             flags.append(f"temperature {temperature:.2f} K ({_celsius(temperature):.1f} °C) is "
                          f"outside the fitted range {lo:.2f}–{hi:.2f} K "
                          f"({_celsius(lo):.1f}–{_celsius(hi):.1f} °C)")
-    for species in sorted(set(fitted.initial) | set(initial)):
+    for species, (lo, hi) in fitted.initial.items():
         value = float(initial.get(species, 0.0))
-        lo, hi = fitted.initial.get(species, (0.0, 0.0))
         if not lo - _TOL * abs(lo) <= value <= hi + _TOL * abs(hi):
             flags.append(f"starting [{species}] = {value:g} {concentration_unit} is outside "
                          f"the fitted range {lo:g}–{hi:g} {concentration_unit}".replace("  ", " "))
@@ -279,6 +278,11 @@ class Prediction:
     flags : tuple of str
         Conditions outside the fitted range.
     units : Units
+    fitted_temperature : (float, float) or None
+        The fit's temperature range, kelvin.
+    range_known : bool
+        False when the basis carries no fitted range (a prediction from a
+        model file alone), so extrapolation could not be checked.
     """
 
     times: np.ndarray
@@ -295,6 +299,8 @@ class Prediction:
     level: float
     flags: tuple
     units: Units
+    fitted_temperature: tuple | None = None
+    range_known: bool = True
 
     @property
     def extrapolated(self):
@@ -305,6 +311,9 @@ class Prediction:
             "temperature_K": self.temperature, "initial": dict(self.initial),
             "units": {"time": self.units.time, "concentration": self.units.concentration},
             "extrapolated": self.extrapolated, "flags": list(self.flags),
+            "range_checked": self.range_known,
+            "fitted_temperature_range_K": None if self.fitted_temperature is None else
+            list(self.fitted_temperature),
             "uncertainty": self.uncertainty, "level": self.level, "draws": self.draws,
             "failed_draws": self.failed,
             "rate_constants": {name: rate.to_dict() for name, rate in self.rates},
@@ -483,4 +492,6 @@ def predict(basis, initial, times, temperature=None, samples=None, names=None,
     return Prediction(times=np.asarray(times, dtype=float), species=basis.mechanism.species,
                       conc=conc[0], lower=lower, upper=upper, temperature=temperature,
                       initial=initial, rates=rates, uncertainty=how, draws=int(rows.shape[0]),
-                      failed=int((~good).sum()), level=level, flags=flags, units=basis.units)
+                      failed=int((~good).sum()), level=level, flags=flags, units=basis.units,
+                      fitted_temperature=basis.fitted.temperature,
+                      range_known=bool(basis.fitted.initial))
