@@ -91,7 +91,7 @@ def fit_command(
 
       kinfit fit demo/experiment.toml --model demo/thiol_addition.toml --out results
 
-      kinfit fit demo/temperature/experiment.toml --model models/arrhenius_ester.toml
+      kinfit fit demo/temperature/experiment.toml --model demo/temperature/ester_hydrolysis.toml --out results
     """
     with _handled():
         from .data import load_experiment
@@ -166,7 +166,7 @@ def simulate_command(
 
       kinfit simulate models/consecutive.toml -i A=1.0 --set k1=0.5 --set k2=0.1 --until 60
 
-      kinfit simulate models/arrhenius_ester.toml -i ester=20 -i hydroxide=40 -T 30 --temperature-unit degC --fit results/temperature.json --until 60
+      kinfit simulate demo/temperature/ester_hydrolysis.toml -i ester=20 -i hydroxide=40 -T 30 --temperature-unit degC --fit results/temperature.json --until 60
     """
     with _handled():
         import numpy as np

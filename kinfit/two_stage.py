@@ -129,9 +129,11 @@ def weighted_line(x, y, sigma=None):
     if np.ptp(x) == 0:
         raise KinfitError("a straight line needs points at different x (temperatures)")
     weighted = sigma is not None
-    w = np.ones(n) if sigma is None else 1.0 / np.asarray(sigma, dtype=float) ** 2
-    if not np.all(np.isfinite(w)) or np.any(w <= 0):
-        raise KinfitError("every point of the line needs a positive, finite uncertainty")
+    if sigma is not None:
+        sigma = np.asarray(sigma, dtype=float)
+        if sigma.shape != (n,) or not np.all(np.isfinite(sigma)) or np.any(sigma <= 0):
+            raise KinfitError("every point of the line needs a positive, finite uncertainty")
+    w = np.ones(n) if sigma is None else 1.0 / sigma ** 2
     design = np.column_stack([x, np.ones(n)])
     normal = design.T @ (w[:, None] * design)
     cov_w = np.linalg.inv(normal)
