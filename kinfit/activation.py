@@ -38,7 +38,8 @@ from .temperature import (ARRHENIUS, ENERGY_UNIT, STANDARD_TEMPERATURE, linear_f
 from .units import conversion_factor, rate_constant_unit
 
 __all__ = ["Estimate", "RateAt", "Activation", "activation_parameters", "with_posterior",
-           "with_profile", "si_factor", "run_temperatures", "interval_quantile", "LABELS", "UNITS"]
+           "with_profile", "find_estimate", "si_factor", "run_temperatures",
+           "interval_quantile", "LABELS", "UNITS"]
 
 LABELS = {"Ea": "Ea", "A": "A", "dH": "ΔH‡", "dS": "ΔS‡",
           "dG": f"ΔG‡({STANDARD_TEMPERATURE:.2f} K)"}
@@ -171,10 +172,7 @@ class Activation:
 
     def estimate(self, name):
         """The :class:`Estimate` called `name` ("Ea", "A", "dH", "dS", "dG"), or None."""
-        for e in self.estimates:
-            if e.name == name:
-                return e
-        return None
+        return find_estimate(self.estimates, name)
 
     def forms(self):
         """The :class:`~kinfit.temperature.Linear` forms of the estimates."""
@@ -205,6 +203,11 @@ class Activation:
             "rate_constants": [r.to_dict() for r in self.rates],
             "notes": list(self.notes),
         }
+
+
+def find_estimate(estimates, name):
+    """The :class:`Estimate` called `name` in `estimates`, or None."""
+    return next((e for e in estimates if e.name == name), None)
 
 
 def _listed(pair):
@@ -253,6 +256,7 @@ def si_factor(units, overall_order):
 
 
 def interval_quantile(level, dof):
+    """q of a two-sided interval at `level`: normal (dof None) or Student's t."""
     from scipy import stats
 
     p = 0.5 + level / 2.0

@@ -123,7 +123,10 @@ def _temperature_outputs(exp, mech, result, two_stage, seed):
     activations = activation_parameters(result)
     analysis = None
     if two_stage != "none":
-        analysis = run_two_stage(exp, mech, result, orders=two_stage, starts=1, seed=seed)
+        try:
+            analysis = run_two_stage(exp, mech, result, orders=two_stage, starts=1, seed=seed)
+        except KinfitError as exc:   # the global fit stands on its own
+            typer.echo(f"warning: the two-stage analysis was skipped: {exc}", err=True)
     return temperature_outputs(activations, analysis, basis_from_fit(result), result)
 
 

@@ -11,6 +11,7 @@ Design", 2008); species are also told apart by marker shape.
 from __future__ import annotations
 
 import math
+import textwrap
 
 import numpy as np
 from matplotlib.figure import Figure
@@ -268,20 +269,12 @@ def plot_prediction(prediction, title=None, fig=None):
     """
     if fig is None:
         fig = Figure(figsize=(6.5, 4.5), layout="constrained")
-    ax = fig.subplots()
-    style = _style(prediction.species)
-    for i, species in enumerate(prediction.species):
-        color = style[species][0]
-        ax.plot(prediction.times, prediction.conc[:, i], color=color, lw=1.8, label=species)
-        if prediction.lower is not None:
-            ax.fill_between(prediction.times, prediction.lower[:, i], prediction.upper[:, i],
-                            color=color, alpha=0.2, lw=0)
-    units = prediction.units
-    ax.set_xlabel(f"time ({units.time})")
-    ax.set_ylabel(f"concentration ({units.concentration})")
-    ax.legend(fontsize=8, frameon=False)
-    import textwrap
-
+    fig = plot_trajectory(prediction, prediction.units, fig=fig)   # same times/conc/species
+    ax = fig.axes[0]
+    if prediction.lower is not None:
+        for line, lower, upper in zip(ax.lines, prediction.lower.T, prediction.upper.T):
+            ax.fill_between(prediction.times, lower, upper, color=line.get_color(), alpha=0.2,
+                            lw=0)
     parts = [title] if title else []
     if prediction.temperature is not None:
         parts.append(f"{prediction.temperature:.2f} K")

@@ -277,9 +277,9 @@ def format_activation(activations, two_stage=None, result=None, cautions=True):
     for act in activations:
         lo, hi = act.temperature_range
         out.append(f"  {act.constant}: {_law_text(act)}")
-        out.append(f"    T_ref = {_kelvin_celsius(act.reference)}; "
-                   f"{act.constant} is k at T_ref; runs from {_kelvin_celsius(lo)} to "
-                   f"{_kelvin_celsius(hi)}, {len(act.rates)} temperatures")
+        out.append(f"    T_ref = {_kelvin_celsius(act.reference)}, where {act.constant} "
+                   f"= k_ref; {len(act.rates)} temperatures")
+        out.append(f"    runs from {_kelvin_celsius(lo)} to {_kelvin_celsius(hi)}")
         rows = []
         for e in act.estimates:
             label = e.label + (" (fitted)" if e.fitted else "")
@@ -288,7 +288,8 @@ def format_activation(activations, two_stage=None, result=None, cautions=True):
         out += _table(rows, ("quantity", "value ± standard error", "unit",
                              f"{level:g} % interval", "profile", "posterior"))
         out.append("    ΔS‡ and ΔG‡ for a standard state of 1 mol/L; profile and posterior "
-                   "intervals appear when computed")
+                   "intervals")
+        out.append("    appear when those analyses are run")
         out.append(f"  {act.constant} at each measured temperature ({act.unit or ''})")
         rows = [(f"{r.temperature:.2f}", f"{_celsius(r.temperature):.1f}",
                  format_value(r.value, r.stderr), _interval(r.interval))
@@ -311,10 +312,11 @@ def format_activation(activations, two_stage=None, result=None, cautions=True):
 def _format_two_stage(two_stage, activations, result):
     from .two_stage import order_differences
 
-    how = ("its own orders at each temperature" if two_stage.orders == "free"
+    how = ("its own orders" if two_stage.orders == "free"
            else "orders fixed at the global fit's values")
-    out = [f"Two-stage analysis (k fitted at each temperature with {how}, then weighted "
-           f"straight lines of ln k and ln(k/T) against 1/T)"]
+    out = textwrap.wrap(f"Two-stage analysis (k fitted at each temperature with {how}, then "
+                        f"weighted straight lines of ln k and ln(k/T) against 1/T)", 88,
+                        subsequent_indent="  ")
     names = [n for n in two_stage.groups[0].values]
     rows = []
     for g in two_stage.groups:

@@ -25,7 +25,8 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .activation import UNITS, Estimate, interval_quantile, run_temperatures, si_factor
+from .activation import (UNITS, Estimate, find_estimate, interval_quantile, run_temperatures,
+                         si_factor)
 from .errors import KinfitError
 from .fit import fit
 from .mechanism import ROLE_ORDER
@@ -210,10 +211,8 @@ class TwoStageLaw:
     notes: tuple = ()
 
     def estimate(self, name):
-        for e in self.estimates:
-            if e.name == name:
-                return e
-        return None
+        """The :class:`~kinfit.activation.Estimate` called `name`, or None."""
+        return find_estimate(self.estimates, name)
 
     def to_dict(self):
         return {

@@ -233,3 +233,50 @@ def test_fit_with_a_run_without_temperature(tmp_path):
     assert result.exit_code == 2
     assert "run 'r1': the model's rate constants depend on temperature" in result.output
     assert not (tmp_path / "o").exists()
+
+
+def test_two_stage_that_cannot_run_is_skipped_with_a_warning(tmp_path):
+    # One run at each of two temperatures, 3 points each, with a fitted starting
+    # concentration: the global fit has 5 parameters for 6 points, but each stage-one fit
+    # would have 3 (k, m, A0) for 3 points, so the two-stage analysis cannot run.
+    write(tmp_path, "model.toml", """
+        # A -> P, free order, Arrhenius
+        [[steps]]
+        reaction = "A -> P"
+        rate = "k * [A]^m"
+        [parameters]
+        k = { value = 0.05, min = 0 }
+        m = { value = 1, min = 0, max = 3 }
+        Ea = 50
+        [temperature]
+        arrhenius = { k = "Ea" }
+    """)
+    write(tmp_path, "experiment.toml", """
+        [data]
+        file = "traces.csv"
+        [[runs]]
+        name = "cold"
+        temperature = 300
+        initial = { A = { value = 1.0, vary = true, min = 0 } }
+        [[runs]]
+        name = "warm"
+        temperature = 320
+        initial = { A = { value = 1.0, vary = true, min = 0 } }
+    """)
+    write(tmp_path, "traces.csv", """
+        run,time,species,value
+        cold,0,A,1.0
+        cold,10,A,0.61
+        cold,20,A,0.37
+        warm,0,A,1.0
+        warm,10,A,0.22
+        warm,20,A,0.05
+    """)
+    out = tmp_path / "o"
+    result = runner.invoke(app, ["fit", str(tmp_path / "experiment.toml"), "--model",
+                                 str(tmp_path / "model.toml"), "--out", str(out),
+                                 "--starts", "1"])
+    assert result.exit_code == 0, result.output
+    assert "warning: the two-stage analysis was skipped" in result.output
+    assert "3 fitted parameters but only 3 data points" in result.output
+    assert json.loads((out / "temperature.json").read_text())["two_stage"] is None

@@ -58,7 +58,8 @@ def test_numerics_do_not_import_matplotlib():
     import subprocess
     import sys
 
-    code = ("import sys, kinfit.fit, kinfit.simulate, kinfit.data, kinfit.report; "
+    code = ("import sys, kinfit.fit, kinfit.simulate, kinfit.data, kinfit.report, "
+            "kinfit.temperature, kinfit.activation, kinfit.two_stage, kinfit.prediction; "
             "print('matplotlib' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
