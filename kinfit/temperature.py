@@ -318,6 +318,19 @@ class TemperatureLayout:
             rows.append(row)
         return rows
 
+    def energy_slopes(self):
+        """∂ln k/∂E of each temperature-dependent rate constant, per temperature group.
+
+        Returns
+        -------
+        list of list of (int, int, float)
+            For each group: (rate constant column, energy column,
+            -KILO/R (1/T - 1/T_ref)) -- the same for Arrhenius and Eyring,
+            whose extra factor T/T_ref does not depend on E.
+        """
+        return [[(k_col, e_col, -KILO / R * (1.0 / t - 1.0 / self.reference))
+                 for k_col, e_col, _ in self.columns] for t in self.temperatures]
+
 
 def join_temperatures(spec, names, temperatures, varies, source="<experiment>", runs=()):
     """Lay out a model's temperature laws against the runs of an experiment.

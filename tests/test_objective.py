@@ -131,3 +131,22 @@ def test_each_run_gets_the_rate_constant_of_its_temperature(arrhenius_study):
         '[[steps]]\nreaction = "A -> P"\nrate = "k * [A]"\n[parameters]\nk = 0.1\n'), exp)
     arrays = plain.rate_arrays(plain.values_array({}))
     assert all(a[0] is arrays[0][0] for a in arrays)
+
+
+@pytest.mark.parametrize("study", ["arrhenius_study", "eyring_study"])
+def test_exact_jacobian_of_a_temperature_problem(request, study):
+    # The sensitivities with respect to k_ref and the energy, against central finite
+    # differences of the residuals (common practice), at a point away from the optimum.
+    data = request.getfixturevalue(study)
+    problem = build_problem(data["mechanism"], data["experiment"])
+    values = problem.values_array(data["result"].values)[0] * 1.02
+    res, jac, ok, _ = problem.residuals_jacobian(values)
+    assert ok
+    for p, name in enumerate(problem.names):
+        h = 1e-6 * abs(values[p])
+        up, down = values.copy(), values.copy()
+        up[p] += h
+        down[p] -= h
+        fd = (problem.residuals(up)[0] - problem.residuals(down)[0]) / (2 * h)
+        scale = np.abs(fd).max()
+        assert np.abs(jac[:, p] - fd).max() <= 1e-4 * scale, name
