@@ -73,7 +73,7 @@ _P = np.array([
     [0.0, 40617522 / 29380423, -110615467 / 29380423, 69997945 / 29380423]])
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, error_model="numpy")
 def _factors(c, E, present, eps, deriv, pw, slope, dlog):
     """Per (direction, species): factor, its slope in c and its derivative in e.
 
@@ -182,7 +182,15 @@ def _rhs(z, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, out, ro
             out[row, S + a * n_sens + p] = acc
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, error_model="numpy")
+def _rhs_call(z, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, out, row,
+              pw, slope, dlog, r, dr, J):
+    """:func:`_rhs` behind a call boundary, for the few calls outside the step loop."""
+    _rhs(z, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, out, row, pw, slope,
+         dlog, r, dr, J)
+
+
+@njit(cache=True, error_model="numpy")
 def _norm(err, y, y_new, n, atol, rtol):
     acc = 0.0
     for i in range(n):
@@ -225,6 +233,13 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
     z = z0.copy()
     z_new = np.empty(n)
     tmp = np.empty(n)
+    y6 = np.empty(n)
+    A7 = np.zeros((7, 6))       # the tableau with the solution weights as its last row
+    for i in range(6):
+        for q in range(5):
+            A7[i, q] = A[i, q]
+    for q in range(6):
+        A7[6, q] = B[q]
     err = np.empty(n)
     n_out = t_out.size
     i_out = 0
@@ -240,8 +255,8 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
         return OK, 0, 0
     t = 0.0
     t_end = t_out[n_out - 1]
-    _rhs(z, S, n_sens, stoich, k, E, present, eps, kind, jj, ss, K, 0, pw, slope, dlog, r,
-         dr, J)
+    _rhs_call(z, S, n_sens, stoich, k, E, present, eps, kind, jj, ss, K, 0, pw, slope, dlog,
+              r, dr, J)
     n_rhs = 1
     # initial step (Hairer, Nørsett & Wanner, II.4; as scipy's select_initial_step)
     acc0 = 0.0
@@ -259,8 +274,8 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
     h0 = min(h0, t_end)
     for a in range(n):
         tmp[a] = z[a] + h0 * K[0, a]
-    _rhs(tmp, S, n_sens, stoich, k, E, present, eps, kind, jj, ss, K, 1, pw, slope, dlog, r,
-         dr, J)
+    _rhs_call(tmp, S, n_sens, stoich, k, E, present, eps, kind, jj, ss, K, 1, pw, slope, dlog,
+              r, dr, J)
     n_rhs += 1
     acc2 = 0.0
     for a in range(S):
@@ -282,22 +297,20 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
             return FAILED, steps, n_rhs
         if t + h > t_end:
             h = t_end - t
-        # stages 2..6
-        for st in range(1, 6):
+        # stages 2..7; the 7th is evaluated at the new solution (first same as last)
+        for st in range(1, 7):
             for a in range(n):
                 acc = z[a]
                 for q in range(st):
-                    acc += h * A[st, q] * K[q, a]
+                    acc += h * A7[st, q] * K[q, a]
                 tmp[a] = acc
+            if st == 5:
+                for a in range(n):
+                    y6[a] = tmp[a]
             _rhs(tmp, S, n_sens, stoich, k, E, present, eps, kind, jj, ss, K, st, pw, slope,
                  dlog, r, dr, J)
         for a in range(n):
-            acc = z[a]
-            for q in range(6):
-                acc += h * B[q] * K[q, a]
-            z_new[a] = acc
-        _rhs(z_new, S, n_sens, stoich, k, E, present, eps, kind, jj, ss, K, 6, pw, slope,
-             dlog, r, dr, J)
+            z_new[a] = tmp[a]
         n_rhs += 6
         for a in range(n):
             acc = 0.0
@@ -315,7 +328,7 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
             den = 0.0
             for a in range(n):
                 num += (K[6, a] - K[5, a]) ** 2
-                den += (z_new[a] - tmp[a]) ** 2
+                den += (z_new[a] - y6[a]) ** 2
             if den > 0.0 and h * math.sqrt(num / den) > 3.25:
                 stiff_count += 1
                 if stiff_count >= 15:
@@ -468,7 +481,7 @@ _B1, _B2, _B3, _B4 = 19.0 / 9.0, 0.5, 25.0 / 108.0, 125.0 / 108.0
 _E1, _E2, _E3, _E4 = 17.0 / 54.0, 7.0 / 36.0, 0.0, 125.0 / 108.0
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, error_model="numpy")
 def _jac(y, stoich, k, E, present, eps, pw, slope, dlog, J):
     """Analytic Jacobian ∂f/∂y of one system into J."""
     D, S = E.shape
@@ -487,7 +500,7 @@ def _jac(y, stoich, k, E, present, eps, pw, slope, dlog, J):
                     J[a, t] += stoich[a, j] * d
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, error_model="numpy")
 def _f(y, stoich, k, E, present, eps, pw, slope, dlog, out):
     """Right-hand side of one system's states into out."""
     D, S = E.shape
@@ -502,7 +515,7 @@ def _f(y, stoich, k, E, present, eps, pw, slope, dlog, out):
             out[a] += stoich[a, j] * r
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, error_model="numpy")
 def _lu(M, piv):
     """In-place LU with partial pivoting of a small square matrix; False if singular."""
     n = M.shape[0]
@@ -530,7 +543,7 @@ def _lu(M, piv):
     return True
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, error_model="numpy")
 def _solve_lu(M, piv, b):
     n = M.shape[0]
     for c in range(n):
@@ -576,6 +589,17 @@ def _ros_lockstep(Y0, stoich, K, EE, present, eps, t_out, rtol, atol, max_steps,
     Ft = np.empty(S)
     G = np.empty((4, m, S))
     Ytmp = np.empty(S)
+    RA = np.zeros((4, 3))       # stage-argument weights a_iq
+    RA[1, 0] = _A21
+    RA[2, 0] = _A31
+    RA[2, 1] = _A32
+    RC = np.zeros((4, 3))       # Jacobian-correction weights c_iq
+    RC[1, 0] = _C21
+    RC[2, 0] = _C31
+    RC[2, 1] = _C32
+    RC[3, 0] = _C41
+    RC[3, 1] = _C42
+    RC[3, 2] = _C43
     n_out = t_out.size
     i_out = 0
     while i_out < n_out and t_out[i_out] <= 0.0:
@@ -616,31 +640,29 @@ def _ros_lockstep(Y0, stoich, K, EE, present, eps, t_out, rtol, atol, max_steps,
             continue
         err_acc = 0.0
         for c in range(m):
-            g1 = G[0, c]
+            # stage i solves (1/(γh) - J) g_i = f(y + Σ a_iq g_q) + Σ c_iq g_q / h;
+            # stages 3 and 4 share one right-hand side
             for a in range(S):
-                g1[a] = F0[c, a]
-            _solve_lu(LU[c], piv[c], g1)
+                Ft[a] = F0[c, a]
+            for st in range(4):
+                if st == 1 or st == 2:
+                    for a in range(S):
+                        acc = Y[c, a]
+                        for q in range(st):
+                            acc += RA[st, q] * G[q, c, a]
+                        Ytmp[a] = acc
+                    _f(Ytmp, stoich, K[c], EE[c], present, eps, pw, slope, dlog, Ft)
+                g = G[st, c]
+                for a in range(S):
+                    acc = Ft[a]
+                    for q in range(st):
+                        acc += RC[st, q] * G[q, c, a] / h
+                    g[a] = acc
+                _solve_lu(LU[c], piv[c], g)
             for a in range(S):
-                Ytmp[a] = Y[c, a] + _A21 * g1[a]
-            _f(Ytmp, stoich, K[c], EE[c], present, eps, pw, slope, dlog, Ft)
-            g2 = G[1, c]
-            for a in range(S):
-                g2[a] = Ft[a] + _C21 * g1[a] / h
-            _solve_lu(LU[c], piv[c], g2)
-            for a in range(S):
-                Ytmp[a] = Y[c, a] + _A31 * g1[a] + _A32 * g2[a]
-            _f(Ytmp, stoich, K[c], EE[c], present, eps, pw, slope, dlog, Ft)
-            g3 = G[2, c]
-            for a in range(S):
-                g3[a] = Ft[a] + (_C31 * g1[a] + _C32 * g2[a]) / h
-            _solve_lu(LU[c], piv[c], g3)
-            g4 = G[3, c]
-            for a in range(S):
-                g4[a] = Ft[a] + (_C41 * g1[a] + _C42 * g2[a] + _C43 * g3[a]) / h
-            _solve_lu(LU[c], piv[c], g4)
-            for a in range(S):
-                Ynew[c, a] = Y[c, a] + _B1 * g1[a] + _B2 * g2[a] + _B3 * g3[a] + _B4 * g4[a]
-                e = _E1 * g1[a] + _E2 * g2[a] + _E3 * g3[a] + _E4 * g4[a]
+                Ynew[c, a] = Y[c, a] + _B1 * G[0, c, a] + _B2 * G[1, c, a] + _B3 * G[2, c, a] \
+                    + _B4 * G[3, c, a]
+                e = _E1 * G[0, c, a] + _E2 * G[1, c, a] + _E3 * G[2, c, a] + _E4 * G[3, c, a]
                 sc = atol + max(abs(Y[c, a]), abs(Ynew[c, a])) * rtol
                 err_acc += (e / sc) ** 2
         n_rhs += 2 * m
