@@ -37,6 +37,7 @@ from .errors import KinfitError
 from .mechanism import ROLE_ORDER, ROLE_RATE_CONSTANT, format_rate_law
 from .objective import FAILED_RESIDUAL, build_problem, information_criteria
 from .simulate import Trajectory
+from .temperature import ENERGY_UNIT, ROLE_ACTIVATION_ENERGY, ROLE_ACTIVATION_ENTHALPY
 
 __all__ = ["FitResult", "fit", "DEFAULT_STARTS"]
 
@@ -569,6 +570,8 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
             units[p.name] = exp.units.concentration
         elif p.role == ROLE_TIME_OFFSET:
             units[p.name] = exp.units.time
+        elif p.role in (ROLE_ACTIVATION_ENERGY, ROLE_ACTIVATION_ENTHALPY):
+            units[p.name] = ENERGY_UNIT
         else:
             units[p.name] = ""
     for name, order in overall.items():

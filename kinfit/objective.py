@@ -36,6 +36,7 @@ from .observables import build_observation, observe
 from .compiled import KIND_INITIAL, KIND_LOG_K, KIND_ORDER
 from .mechanism import rates as rates_fn
 from .simulate import ATOL, MAX_RHS_CALLS, RTOL, integrate_flat, simulate_runs
+from .temperature import join_temperatures
 
 __all__ = ["Problem", "build_problem", "residuals", "log_likelihood",
            "information_criteria", "FAILED_RESIDUAL"]
@@ -60,6 +61,9 @@ class Problem:
     method : str
         Integrator, see :func:`kinfit.simulate.integrate_flat` ("auto": the
         compiled explicit integrator, LSODA where the equations are stiff).
+    temperature : TemperatureLayout or None
+        Each run's temperature group and T_ref, when the model's rate
+        constants depend on temperature (see :mod:`kinfit.temperature`).
     """
 
     mechanism: object
@@ -70,6 +74,7 @@ class Problem:
     rtol: float = RTOL
     atol: float = ATOL
     max_rhs: int = MAX_RHS_CALLS
+    temperature: object = None
     _conc0: np.ndarray = field(default=None, repr=False)
     _initial_map: tuple = field(default=(), repr=False)
     _offset_map: tuple = field(default=(), repr=False)
@@ -122,8 +127,12 @@ class Problem:
         -------
         list of (k [n_sets, n_directions], orders [n_sets, n_directions, n_species])
             One pair per run. Without temperature dependence all runs share
-            one pair.
+            one pair; with it, runs at one temperature share one.
         """
+        if self.temperature is not None:
+            groups = [self.mechanism.rate_arrays(rows) for rows in
+                      self.temperature.group_values(values[:, :self.n_model])]
+            return [groups[g] for g in self.temperature.run_group]
         shared = self.mechanism.rate_arrays(values[:, :self.n_model])
         return [shared] * len(self.experiment.runs)
 
@@ -139,7 +148,16 @@ class Problem:
         for j, p in enumerate(mech._constant_index):
             with np.errstate(divide="ignore"):
                 out[:, j, p] = 1.0 / values[:, p]
-        return [out] * len(self.experiment.runs)
+        if self.temperature is None:
+            return [out] * len(self.experiment.runs)
+        # k_j(T) = k_ref g(T, E): ∂ln k_j/∂k_ref is as above; add ∂ln k_j/∂E per temperature
+        groups = []
+        for slopes in self.temperature.energy_slopes():
+            group = out.copy()
+            for k_col, e_col, slope in slopes:
+                group[:, mech._constant_index == k_col, e_col] = slope
+            groups.append(group)
+        return [groups[g] for g in self.temperature.run_group]
 
     def run_inputs(self, values, times=None):
         """Starting concentrations and model times of every run.
@@ -371,8 +389,16 @@ def build_problem(mechanism, experiment, method="auto"):
             parameters.append(_unique(run.time_offset, names, experiment))
         else:
             offset_map.append(-1)
+    temperature = None
+    if mechanism.temperature is not None:
+        temperature = join_temperatures(
+            mechanism.temperature, mechanism.parameter_names,
+            [run.temperature for run in experiment.runs],
+            {n: p.vary for n, p in mechanism.parameters.items()}, experiment.source,
+            [run.name for run in experiment.runs])
     return Problem(mechanism=mechanism, experiment=experiment, observation=observation,
-                   parameters=tuple(parameters), method=method, _conc0=conc0,
+                   parameters=tuple(parameters), method=method, temperature=temperature,
+                   _conc0=conc0,
                    _initial_map=tuple(initial_map), _offset_map=tuple(offset_map),
                    _times=observation.run_times,
                    _layout=_flat_layout(mechanism, observation, len(parameters), initial_map,
