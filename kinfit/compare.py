@@ -491,6 +491,9 @@ def _structure(mech):
         "C": np.column_stack(columns) if columns else np.zeros((e0.size, 0)),
         "free_orders": tuple(names[i] for i in free),
         "params": params,
+        "temperature": getattr(mech, "temperature", None),
+        "others": {n: p for n, p in params.items()
+                   if p.role not in (ROLE_ORDER, ROLE_RATE_CONSTANT)},
     }
 
 
@@ -513,8 +516,10 @@ def _aligned(small, large):
 def nests(small, large, tol=1e-9):
     """Whether mechanism `small` is mechanism `large` with parameters fixed or tied.
 
-    The two must have the same species, held-constant species and steps
-    (same stoichiometry, direction by direction). Then `small` is nested in
+    The two must have the same species, held-constant species, steps (same
+    stoichiometry, direction by direction) and temperature laws, and the
+    same other parameters (activation energies), fixed in `small` wherever
+    `large` fixes them. Then `small` is nested in
     `large` when (1) every set of directions sharing a rate constant in
     `large` shares one in `small` with the same ratio of factors, and a rate
     constant `large` fixes is fixed to the same rate in `small`; and (2) the
@@ -536,8 +541,17 @@ def nests(small, large, tol=1e-9):
 
 def _nests(s, l, tol=1e-9):
     aligned = _aligned(s, l)
-    if aligned is None:
+    if aligned is None or s["temperature"] != l["temperature"]:
         return False
+    # other parameters (activation energies): the same ones, and those the larger
+    # model fixes are fixed to the same value in the smaller
+    if set(s["others"]) != set(l["others"]):
+        return False
+    for name, p_l in l["others"].items():
+        p_s = s["others"][name]
+        if not p_l.vary and (p_s.vary or not math.isclose(p_s.value, p_l.value,
+                                                          rel_tol=1e-12)):
+            return False
     e0_s, c_s, _ = aligned
     n_dir = len(l["constants"])
     for i in range(n_dir):
@@ -1122,13 +1136,23 @@ def fitted_orders(result):
 
 
 def _cross_check(comparison, experiment, max_conversion):
-    """The initial-rates method beside the best one-step candidate, or None."""
+    """The initial-rates method beside the best one-step candidate.
+
+    Returns
+    -------
+    CrossCheck or str
+        The check, or why it was skipped.
+    """
+    if len({run.temperature for run in experiment.runs}) > 1:
+        return ("the runs are at several temperatures, so the initial-rates cross-check "
+                "(one rate constant for all runs) was skipped")
     for row in comparison.candidates:
         mech = row.fit.mechanism
         if len(mech.steps) == 1 and not mech.steps[0].reaction.reversible:
             break
     else:
-        return None
+        return ("no candidate has a single irreversible step, so the initial-rates "
+                "cross-check was skipped")
     result = initial_rates(experiment, mech, max_conversion=max_conversion)
     warnings, orders, k_check = [], (), None
     fitted = fitted_orders(row.fit)
@@ -1143,7 +1167,9 @@ def _cross_check(comparison, experiment, max_conversion):
     law = mech.directions[0][1]
     k_name = law.constant
     fit_k, fit_se = row.fit.values[k_name] * law.factor, row.fit.stderr.get(k_name)
-    at = rate_constant_at(result, {s: m for s, (m, _) in fitted.items()})
+    # with a temperature law the fitted k is k at the reference temperature
+    at = None if getattr(mech, "temperature", None) is not None else rate_constant_at(
+        result, {s: m for s, (m, _) in fitted.items()})
     if at is not None and fit_k > 0:
         k_ir, k_ir_se = at
         ln_se_fit = (fit_se * law.factor / fit_k) if fit_se is not None else 0.0
@@ -1228,8 +1254,9 @@ def rank(experiment, mechanisms, orders=None, *, starts=DEFAULT_STARTS,
                          [c.template for c in candidates])
     if cross_check:
         check = _cross_check(comparison, experiment, max_conversion)
-        warnings = comparison.warnings + (check.warnings if check else (
-            "no candidate has a single irreversible step, so the initial-rates cross-check "
-            "was skipped",))
-        comparison = replace(comparison, cross_check=check, warnings=warnings)
+        if isinstance(check, str):
+            comparison = replace(comparison, warnings=comparison.warnings + (check,))
+        else:
+            comparison = replace(comparison, cross_check=check,
+                                 warnings=comparison.warnings + check.warnings)
     return comparison

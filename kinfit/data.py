@@ -509,7 +509,75 @@ def _check_times(times, lines, shown, what):
                           f"t={times[i]:g} after t={times[i - 1]:g})")
 
 
+def _fast_long(path):
+    """The long table read by pandas' numeric parser, or None when anything is unusual.
+
+    Clean files (no blank lines, no quotes, numbers everywhere they belong) are
+    read in one pass; anything else goes through the careful reader, which
+    finds the exact line of every problem.
+    """
+    import pandas as pd
+
+    try:
+        text = Path(path).read_bytes().decode("utf-8")
+    except UnicodeDecodeError:
+        return None
+    if "\r" in text or '"' in text or "\n\n" in text.strip("\n") or text.startswith("\ufeff"):
+        return None
+    header = [c.strip() for c in text.split("\n", 1)[0].split(",")]
+    body = text.strip("\n")
+    if body.count(",") != (body.count("\n") + 1) * (len(header) - 1):
+        return None                   # some row has more or fewer fields than the header
+    lower = {c.lower(): c for c in header}
+    if len(set(header)) != len(header) or any(c not in lower for c in _LONG_COLUMNS):
+        return None
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("error")
+            frame = pd.read_csv(io.StringIO(text), usecols=[lower[c] for c in _LONG_COLUMNS],
+                                dtype={lower["run"]: str, lower["species"]: str,
+                                       lower["time"]: float, lower["value"]: float},
+                                na_filter=False, skipinitialspace=True, index_col=False)
+    except (ValueError, pd.errors.ParserError, pd.errors.ParserWarning):
+        return None
+    times = frame[lower["time"]].to_numpy(dtype=float)
+    values = frame[lower["value"]].to_numpy(dtype=float)
+    if not (np.isfinite(times).all() and np.isfinite(values).all()) or not len(frame):
+        return None
+    runs = frame[lower["run"]].str.strip().to_numpy()
+    species = frame[lower["species"]].str.strip().to_numpy()
+    if (runs == "").any() or (species == "").any():
+        return None
+    return runs, times, species, values, np.arange(2, len(frame) + 2)
+
+
 def _read_long(path, shown, listed, own_file):
+    fast = _fast_long(path)
+    if fast is not None:
+        runs, times, species, values, lines = fast
+    else:
+        runs, times, species, values, lines = _careful_long(path, shown)
+    out = {}
+    for run in dict.fromkeys(runs):
+        rows = np.flatnonzero(runs == run)
+        if run not in listed:
+            raise KinfitError(f"{shown}, line {lines[rows[0]]}: run {run!r} is not listed in "
+                              f"the experiment file; add a [[runs]] entry for it or remove "
+                              f"its rows")
+        if run in own_file:
+            raise KinfitError(f"{shown}, line {lines[rows[0]]}: run {run!r} has its own data "
+                              f"file too; give each run's data once")
+        traces = []
+        for sp in dict.fromkeys(species[rows]):
+            sel = rows[species[rows] == sp]
+            _check_times(times[sel], lines[sel], shown, f"run {run!r}, {sp}")
+            traces.append(Trace(sp, times[sel], values[sel], lines[sel]))
+        out[run] = traces
+    return out
+
+
+def _careful_long(path, shown):
+    """Read the long table cell by cell, naming the line of any problem."""
     frame = _read_csv(path, shown)
     lower = {c.lower(): c for c in frame.columns}
     missing = [c for c in _LONG_COLUMNS if c not in lower]
@@ -533,23 +601,7 @@ def _read_long(path, shown, listed, own_file):
         if empty.size:
             raise KinfitError(f"{shown}, line {lines[empty[0]]}: the {label} is missing")
 
-    out = {}
-    for run in dict.fromkeys(runs):
-        rows = np.flatnonzero(runs == run)
-        if run not in listed:
-            raise KinfitError(f"{shown}, line {lines[rows[0]]}: run {run!r} is not listed in "
-                              f"the experiment file; add a [[runs]] entry for it or remove "
-                              f"its rows")
-        if run in own_file:
-            raise KinfitError(f"{shown}, line {lines[rows[0]]}: run {run!r} has its own data "
-                              f"file too; give each run's data once")
-        traces = []
-        for sp in dict.fromkeys(species[rows]):
-            sel = rows[species[rows] == sp]
-            _check_times(times[sel], lines[sel], shown, f"run {run!r}, {sp}")
-            traces.append(Trace(sp, times[sel], values[sel], lines[sel]))
-        out[run] = traces
-    return out
+    return runs, times, species, values, lines
 
 
 def _read_wide(path, shown):
