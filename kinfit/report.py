@@ -526,8 +526,10 @@ def format_ranking(comparison, top=10, cautions=True):
     for line in comparison.verdict:
         out += textwrap.wrap(line, 88, initial_indent="  - ", subsequent_indent="    ",
                              break_on_hyphens=False)
+    # pairs that say whether a simpler candidate will do: a leading candidate
+    # against what contains it, and what the best contains
     leading = {r.name for r in rows[:3]}
-    shown = [t for t in comparison.nested if t.smaller in leading or t.larger in leading]
+    shown = [t for t in comparison.nested if t.smaller in leading or t.larger == best.name]
     if shown:
         out += ["", "Nested pairs (smaller = larger with parameters fixed): F-test and "
                     "likelihood ratio"]
@@ -540,7 +542,7 @@ def format_ranking(comparison, top=10, cautions=True):
                                     "p (LR)", "on a bound*"))
         if len(shown) > 8:
             out.append(f"  ... {len(shown) - 8} more in ranking.json")
-        if any(t.on_boundary for t in shown):
+        if any(t.on_boundary for t in shown[:8]):
             out.append("  * a value fixed on a bound of the larger model: p-values are "
                        "conservative (too large)")
     if comparison.averages:

@@ -330,22 +330,26 @@ def test_parallel_workers_give_the_same_fits(tmp_path):
     assert [s[:2] for s in seen] == [(1, 3), (2, 3), (3, 3)] and seen[0][2] == "free"
 
 
-@pytest.mark.parametrize("seed", [101, 102, 103])
-def test_true_orders_rank_first_in_seeded_replicates(tmp_path, seed):
-    # Small version of tests/benchmarks/study_rank_recovery.py: synthetic data
-    # from k [A]^1 [B]^2 with 1 % noise (seeded). The true orders must rank first
-    # among the fixed-order candidates, and first overall by BIC. (By AICc the
-    # free-order template, which contains the truth, wins whenever its χ² drops
-    # by more than 4 for its 2 extra orders: probability e^−2 ≈ 0.135 for a
-    # χ²(2) variable (Wilks 1938); the study reports both counts.)
-    exp, mech = synthetic_power_law(tmp_path, seed=seed, times=np.linspace(0, 100, 11),
-                                    starts={"r1": (1.0, 1.0), "r2": (2.0, 1.0),
-                                            "r3": (1.0, 2.0)})
-    result = rank(exp, mech, {"m": (0.5, 1, 1.5), "n": (1.5, 2, 2.5)}, starts=2, workers=2,
-                  criterion="bic", cross_check=False)
-    fixed = [r for r in result.candidates if r.template is not None]
-    assert fixed[0].fixed == {"m": 1.0, "n": 2.0}
-    assert result.best.fixed == {"m": 1.0, "n": 2.0}
+def test_true_orders_rank_first_in_seeded_replicates(tmp_path):
+    # Small version of tests/benchmarks/study_rank_recovery.py: 10 seeded
+    # replicates of synthetic data from k [A]^1 [B]^2 with 1 % noise, ranked with
+    # the free-order model and 9 fixed-order neighbours of the truth. Required:
+    # the true orders first among the fixed-order candidates in at least 9 of 10,
+    # and first overall by BIC in at least 9 of 10. (By AICc the free-order
+    # template, which contains the truth, wins whenever its χ² drops by more than
+    # 4 for its 2 extra orders: probability e^−2 ≈ 0.135 for a χ²(2) variable
+    # (Wilks 1938); the study reports that count too.)
+    truth = {"m": 1.0, "n": 2.0}
+    first_fixed = first_bic = 0
+    for seed in range(1, 11):
+        (tmp_path / str(seed)).mkdir()
+        exp, mech = synthetic_power_law(tmp_path / str(seed), seed=seed)   # 4 runs x 21 times
+        result = rank(exp, mech, {"m": (0.5, 1, 1.5), "n": (1.5, 2, 2.5)}, starts=2,
+                      workers=2, criterion="bic", cross_check=False)
+        fixed = [r for r in result.candidates if r.template is not None]
+        first_fixed += fixed[0].fixed == truth
+        first_bic += result.best.fixed == truth
+    assert first_fixed >= 9 and first_bic >= 9, (first_fixed, first_bic)
 
 
 def test_rank_refusals(tmp_path, small):
