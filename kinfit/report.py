@@ -539,12 +539,12 @@ def format_ranking(comparison, top=10, cautions=True):
                         f"{t.lr_pvalue:.3g}", "yes" if t.on_boundary else "")
                        for t in shown[:8]]
         out += _table(nested_rows, ("smaller", "larger", "extra", "F", "p (F)", "LR",
-                                    "p (LR)", "on a bound*"))
+                                    "p (LR)", "on a bound"))
         if len(shown) > 8:
             out.append(f"  ... {len(shown) - 8} more in ranking.json")
         if any(t.on_boundary for t in shown[:8]):
-            out.append("  * a value fixed on a bound of the larger model: p-values are "
-                       "conservative (too large)")
+            out.append("  on a bound: the smaller model fixes a value on a bound of the "
+                       "larger one, so the p-values are conservative (too large)")
     if comparison.averages:
         out += ["", "Model-averaged parameters (Akaike weights; unconditional standard "
                     "error)"]
