@@ -146,7 +146,7 @@ def _prepare(out_dir):
     return out_dir
 
 
-def write_fit(out_dir, result, extra_files=None, extra_summary=None):
+def write_fit(out_dir, result, extra_files=None, extra_summary=None, provenance=None):
     """Write a fit's outputs into `out_dir`.
 
     Files: ``result.json`` (see :meth:`FitResult.to_dict`), ``summary.txt``,
@@ -162,6 +162,8 @@ def write_fit(out_dir, result, extra_files=None, extra_summary=None):
         :func:`temperature_outputs`.
     extra_summary : str, optional
         Text appended to ``summary.txt``.
+    provenance : dict, optional
+        Written as ``provenance.json`` (see :func:`kinfit.provenance.collect`).
 
     Returns
     -------
@@ -179,6 +181,11 @@ def write_fit(out_dir, result, extra_files=None, extra_summary=None):
         summary += "\n\n" + extra_summary
     payload.update({name: blob.encode("utf-8") if isinstance(blob, str) else blob
                     for name, blob in (extra_files or {}).items()})
+    if provenance is not None:
+        import json
+
+        payload["provenance.json"] = (json.dumps(provenance, indent=2, ensure_ascii=False)
+                                      + "\n").encode("utf-8")
     curves = _curves_csv(result)
     data = result.to_dict()
     out_dir.mkdir(parents=True, exist_ok=True)
