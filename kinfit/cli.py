@@ -75,6 +75,8 @@ def fit_command(
                                        "analysis beside the global fit, with 'free' orders at "
                                        "each temperature, orders fixed at the 'global' fit's "
                                        "values, or 'none'."),
+    report: bool = typer.Option(True, "--report/--no-report",
+                                help="Also write the self-contained report.html."),
 ):
     """Fit a model to every run of an experiment at once.
 
@@ -108,11 +110,27 @@ def fit_command(
         files, summary = {}, None
         if mech.temperature is not None:
             files, summary = _temperature_outputs(exp, mech, result, two_stage, seed)
-        written = write_fit(out, result, extra_files=files, extra_summary=summary)
+        written = write_fit(out, result, extra_files=files, extra_summary=summary,
+                            provenance=_provenance(exp, mech, seed, {"starts": starts}))
+        if report:
+            written.append(_report(out))
         typer.echo(format_fit(result))
         if summary:
             typer.echo("\n" + summary)
         typer.echo(f"\nWrote {', '.join(p.name for p in written)} in {out}")
+
+
+def _provenance(exp, mech, seed, settings):
+    from .provenance import collect, experiment_inputs
+
+    return collect(experiment_inputs(exp, mech), seed=seed, settings=settings,
+                   command=["kinfit"] + sys.argv[1:])
+
+
+def _report(out):
+    from .html_report import build_report
+
+    return build_report(out)
 
 
 def _temperature_outputs(exp, mech, result, two_stage, seed):
@@ -263,8 +281,10 @@ def demo_command(
 
         typer.echo(textwrap.fill(demo.SCENARIO, 88) + "\n")
         paths = demo.write_inputs(out / "inputs")
-        result = fit(load_experiment(paths["experiment"]), load_mechanism(paths["model"]))
-        written = write_fit(out, result)
+        exp, mech = load_experiment(paths["experiment"]), load_mechanism(paths["model"])
+        result = fit(exp, mech)
+        written = write_fit(out, result, provenance=_provenance(exp, mech, 0, {"starts": 8}))
+        written.append(_report(out))
         typer.echo(format_fit(result))
         typer.echo("\nRecovered against the true values used to make the data")
         for name, true, value, se, z in demo.compare_with_truth(result):
@@ -302,14 +322,16 @@ def rank_command(
                                           "reactant used up."),
     top: int = typer.Option(10, "--top", min=1, help="Candidates shown in the table."),
     seed: int = typer.Option(0, "--seed", help="Seed of the start screens."),
+    report: bool = typer.Option(True, "--report/--no-report",
+                                help="Also write the self-contained report.html."),
 ):
     """Fit several candidate rate laws to every run and rank them.
 
     Ranks by AICc (Akaike and BIC weights), tests nested pairs (F-test,
     likelihood ratio), averages shared parameters over the candidates, and
     sets the initial-rates method beside the best one-step rate law. Writes
-    ranking.json, ranking.txt, weights.png, initial_rates.png/.csv and the
-    best candidate's fit (best/) into --out.
+    ranking.json, ranking.txt, weights.png, initial_rates.png/.csv,
+    provenance.json, report.html and the best candidate's fit (best/) into --out.
 
     Example:
 
@@ -336,7 +358,18 @@ def rank_command(
         finally:
             if bar is not None:
                 bar.close()
-        written = write_ranking(out, comparison, top=top)
+        from .provenance import collect, experiment_inputs
+
+        inputs = experiment_inputs(exp)
+        inputs.update({f"model {i}": m.source for i, m in enumerate(mechanisms, start=1)})
+        provenance = collect(inputs, seed=seed, command=["kinfit"] + sys.argv[1:],
+                             settings={"starts": starts, "lattice_starts": lattice_starts,
+                                       "orders": {k: list(v) for k, v in grid.items()},
+                                       "criterion": criterion.lower(),
+                                       "max_conversion": conversion})
+        written = write_ranking(out, comparison, top=top, provenance=provenance)
+        if report:
+            written.append(_report(out))
         typer.echo(format_ranking(comparison, top=top))
         typer.echo(f"\nWrote {', '.join(p.name for p in written if p.parent == out)} and "
                    f"best/ in {out}")
@@ -358,6 +391,26 @@ class _ProgressBar:
     def close(self):
         if self.bar is not None:
             self.bar.__exit__(None, None, None)
+
+
+@app.command("report")
+def report_command(
+    folder: Path = typer.Argument(..., help="An output folder of kinfit fit, sample or rank."),
+):
+    """Build one self-contained report.html from the results in a folder.
+
+    The report holds every section whose results the folder has: the rate law,
+    parameters with their intervals, each run's fit and residual checks,
+    posteriors, ranking, temperature analysis, warnings, cautions and
+    provenance, with figures embedded so that it opens anywhere offline.
+
+    Example:
+
+      kinfit report kinfit-demo
+    """
+    with _handled():
+        path = _report(folder)
+        typer.echo(f"Wrote {path}")
 
 
 def main():

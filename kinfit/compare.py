@@ -316,7 +316,7 @@ class Comparison:
             "candidates": [_row_dict(r) for r in self.candidates],
             "nested_tests": [vars(t).copy() for t in self.nested],
             "model_averages": [vars(a).copy() for a in self.averages],
-            "verdict": list(self.verdict),
+            "verdicts": list(self.verdict),
             "warnings": list(self.warnings),
             "separation": self.separation,
             "initial_rates": None if self.cross_check is None else _cross_check_dict(

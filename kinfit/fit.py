@@ -35,6 +35,7 @@ import numpy as np
 from .data import ROLE_INITIAL, ROLE_TIME_OFFSET
 from .errors import KinfitError
 from .mechanism import ROLE_ORDER, ROLE_RATE_CONSTANT, format_rate_law
+from .misfit import check_residuals
 from .objective import FAILED_RESIDUAL, build_problem, information_criteria
 from .simulate import Trajectory
 from .temperature import ENERGY_UNIT, ROLE_ACTIVATION_ENERGY, ROLE_ACTIVATION_ENTHALPY
@@ -220,6 +221,7 @@ class FitResult:
                     "evaluations": self.n_evaluations, "integrations": self.n_integrations,
                     "failed_evaluations": self.n_failed, "integrator": self.method},
             "warnings": list(self.warnings),
+            "residual_checks": [c.to_dict() for c in check_residuals(self)],
         }
 
 

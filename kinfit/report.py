@@ -147,7 +147,7 @@ def _prepare(out_dir):
     return out_dir
 
 
-def write_fit(out_dir, result, extra_files=None, extra_summary=None):
+def write_fit(out_dir, result, extra_files=None, extra_summary=None, provenance=None):
     """Write a fit's outputs into `out_dir`.
 
     Files: ``result.json`` (see :meth:`FitResult.to_dict`), ``summary.txt``,
@@ -163,6 +163,8 @@ def write_fit(out_dir, result, extra_files=None, extra_summary=None):
         :func:`temperature_outputs`.
     extra_summary : str, optional
         Text appended to ``summary.txt``.
+    provenance : dict, optional
+        Written as ``provenance.json`` (see :func:`kinfit.provenance.collect`).
 
     Returns
     -------
@@ -180,6 +182,11 @@ def write_fit(out_dir, result, extra_files=None, extra_summary=None):
         summary += "\n\n" + extra_summary
     payload.update({name: blob.encode("utf-8") if isinstance(blob, str) else blob
                     for name, blob in (extra_files or {}).items()})
+    if provenance is not None:
+        import json
+
+        payload["provenance.json"] = (json.dumps(provenance, indent=2, ensure_ascii=False)
+                                      + "\n").encode("utf-8")
     curves = _curves_csv(result)
     data = result.to_dict()
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -642,13 +649,14 @@ def _initial_rates_csv(check):
     return "\n".join(lines) + "\n"
 
 
-def write_ranking(out_dir, comparison, top=10):
+def write_ranking(out_dir, comparison, top=10, provenance=None):
     """Write a ranking's outputs into `out_dir`.
 
     Files: ``ranking.json`` (see :meth:`Comparison.to_dict`), ``ranking.txt``,
     ``weights.png``/``.svg``; with the initial-rates cross-check
-    ``initial_rates.png``/``.svg`` and ``initial_rates.csv``; and the best
-    candidate's fit in ``best/`` (as :func:`write_fit`).
+    ``initial_rates.png``/``.svg`` and ``initial_rates.csv``; the best
+    candidate's fit in ``best/`` (as :func:`write_fit`); and, when given,
+    ``provenance.json`` (see :func:`kinfit.provenance.collect`).
 
     Returns
     -------
@@ -669,7 +677,10 @@ def write_ranking(out_dir, comparison, top=10):
         texts["initial_rates.csv"] = _initial_rates_csv(check)
     data = comparison.to_dict()
     out_dir.mkdir(parents=True, exist_ok=True)
-    written = write_fit(out_dir / "best", comparison.best.fit)
+    written = write_fit(out_dir / "best", comparison.best.fit, provenance=provenance)
+    if provenance is not None:
+        write_json(out_dir / "provenance.json", provenance)
+        written.append(out_dir / "provenance.json")
     for name, blob in payload.items():
         write_bytes(out_dir / name, blob)
         written.append(out_dir / name)

@@ -309,6 +309,10 @@ def test_rank_command(rank_inputs):
     assert sum(c["akaike_weight"] for c in data["candidates"]) == pytest.approx(1.0)
     assert data["nested_tests"] and data["initial_rates"]["regression"] is not None
     assert (out / "weights.png").exists() and (out / "best" / "result.json").exists()
+    assert (out / "report.html").exists()
+    provenance = json.loads((out / "provenance.json").read_text())
+    assert set(provenance["inputs"]) >= {"experiment", "model 1"}
+    assert provenance["settings"]["orders"] == {"m": [1.0, 2.0], "n": [2.0]}
 
 
 @pytest.mark.parametrize("orders, message", [

@@ -299,7 +299,7 @@ def test_small_ranking_contract(small_ranking):
     assert free["n_params"] == 3 and free["template"] is None
     pairs = {(t["smaller"], t["larger"]) for t in data["nested_tests"]}
     assert (rows[0]["name"], free["name"]) in pairs and len(pairs) == 4
-    assert data["verdict"][0].startswith("Best by AICc: 'A + B -> P, free orders [m=1, n=2]'")
+    assert data["verdicts"][0].startswith("Best by AICc: 'A + B -> P, free orders [m=1, n=2]'")
     assert data["evidence_scales"]["aicc"].startswith("Burnham & Anderson")
     assert data["initial_rates"]["compared_with"] == rows[0]["name"]
     assert {o["species"] for o in data["initial_rates"]["orders"]} == {"A", "B"}
