@@ -24,7 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import KinfitError, where
+from .errors import KinfitError, KinfitWarning, where
 from .mechanism import Parameter
 from .sources import decode, find_line, load_toml, resolve_file
 from .units import Units, parse_units, to_kelvin
@@ -35,6 +35,8 @@ __all__ = ["Trace", "Run", "Noise", "Experiment", "load_experiment", "initial_na
 ROLE_INITIAL = "initial concentration"
 ROLE_TIME_OFFSET = "time offset"
 MIN_POINTS = 3
+MAX_MAGNITUDE = 1e100   # larger times or values are typing errors, not measurements
+NEGATIVE_NOISE = 0.05   # a reading below -5 % of its trace's largest is not noise around 0
 
 _EXPERIMENT_KEYS = {"name", "description", "units", "data", "noise", "runs", "temperature"}
 _RUN_KEYS = {"name", "temperature", "initial", "file", "time_offset"}
@@ -289,6 +291,18 @@ def load_experiment(path):
     return Experiment(**{**experiment.__dict__, "noise": noise})
 
 
+def _warn_negative(trace, shown):
+    """Warn (once per trace) about readings clearly below zero."""
+    scale = float(np.max(np.abs(trace.values))) if trace.values.size else 0.0
+    bad = np.flatnonzero(trace.values < -NEGATIVE_NOISE * scale)
+    if bad.size:
+        i = int(bad[0])
+        warnings.warn(f"{shown}, line {trace.lines[i]}: {trace.species} = {trace.values[i]:g} is "
+                      f"negative beyond plausible noise around zero ({bad.size} reading(s) in "
+                      f"this trace); check the sign, the baseline or the units",
+                      KinfitWarning, stacklevel=3)
+
+
 def _parse_run(index, raw, text, source, units, default_temperature):
     loc = where(source, find_line(text, None, "runs", index), f"runs[{index + 1}]")
     unknown = set(raw) - _RUN_KEYS
@@ -488,6 +502,11 @@ def _numbers(column, lines, shown, label, allow_blank=False):
         i = int(np.flatnonzero(inf)[0])
         raise KinfitError(f"{shown}, line {lines[i]}: {label} {stripped.iloc[i]!r} is not a "
                           f"finite number")
+    huge = np.abs(np.where(blank, 0.0, values)) > MAX_MAGNITUDE
+    if huge.any():
+        i = int(np.flatnonzero(huge)[0])
+        raise KinfitError(f"{shown}, line {lines[i]}: {label} {values[i]:g} is implausibly large "
+                          f"(beyond ±{MAX_MAGNITUDE:g}); is a unit or an exponent wrong?")
     if blank.any() and not allow_blank:
         i = int(np.flatnonzero(blank)[0])
         raise KinfitError(f"{shown}, line {lines[i]}: {label} is missing")
@@ -544,6 +563,8 @@ def _fast_long(path):
     values = frame[lower["value"]].to_numpy(dtype=float)
     if not (np.isfinite(times).all() and np.isfinite(values).all()) or not len(frame):
         return None
+    if np.abs(times).max() > MAX_MAGNITUDE or np.abs(values).max() > MAX_MAGNITUDE:
+        return None
     runs = frame[lower["run"]].str.strip().to_numpy()
     species = frame[lower["species"]].str.strip().to_numpy()
     if (runs == "").any() or (species == "").any():
@@ -572,6 +593,7 @@ def _read_long(path, shown, listed, own_file):
             sel = rows[species[rows] == sp]
             _check_times(times[sel], lines[sel], shown, f"run {run!r}, {sp}")
             traces.append(Trace(sp, times[sel], values[sel], lines[sel]))
+            _warn_negative(traces[-1], shown)
         out[run] = traces
     return out
 
@@ -630,4 +652,5 @@ def _read_wide(path, shown):
         keep = ~blank
         if keep.any():
             traces.append(Trace(col, times[keep], values[keep], lines[keep]))
+            _warn_negative(traces[-1], shown)
     return traces

@@ -498,7 +498,7 @@ def _parse_step(index, raw, text, source):
     try:
         reaction = parse_reaction(raw["reaction"])
     except ParseError as exc:
-        fail("reaction", f"{exc} in {raw['reaction']!r}")
+        fail("reaction", f"{exc} in {_clip(raw['reaction'])}")
     label = raw.get("label", label)
     if not isinstance(label, str):
         fail("label", "expected text")
@@ -510,7 +510,7 @@ def _parse_step(index, raw, text, source):
         try:
             return to_power_law(value)
         except ParseError as exc:
-            fail(key, f"{exc}; got {value!r}")
+            fail(key, f"{exc}; got {_clip(value)}")
 
     if "rate" not in raw:
         fail("rate", "missing; every step needs a rate law, like rate = \"k * [A]\"")
@@ -524,6 +524,12 @@ def _parse_step(index, raw, text, source):
     elif "reverse_rate" in raw:
         fail("reverse_rate", "only a reversible step (written with <=>) has a reverse rate")
     return Step(reaction, forward, reverse, label, line)
+
+
+def _clip(text, limit=80):
+    """Quote `text` for a message, shortened to `limit` characters."""
+    text = repr(text)
+    return text if len(text) <= limit else text[:limit - 5] + "…" + text[-4:]
 
 
 def _parse_parameters(raw, steps, text, source, temperature=None):
