@@ -6,6 +6,19 @@ import textwrap
 from pathlib import Path
 
 import pytest
+from hypothesis import HealthCheck, settings
+
+# Property-based fuzzing: a quick profile for every test run, a long one
+# (10,000 examples per target) on request:
+#     python -m pytest tests/test_fuzz.py --hypothesis-profile=long
+settings.register_profile("default", max_examples=100, deadline=None,
+                          suppress_health_check=[HealthCheck.too_slow,
+                                                 HealthCheck.function_scoped_fixture])
+settings.register_profile("long", max_examples=10_000, deadline=None,
+                          suppress_health_check=[HealthCheck.too_slow,
+                                                 HealthCheck.function_scoped_fixture,
+                                                 HealthCheck.data_too_large])
+settings.load_profile("default")
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "demo"
