@@ -10,6 +10,8 @@ The public names are re-exported here and imported on first use, so that
     print(result.values, result.stderr)
 """
 
+import sys
+import types
 from importlib import import_module
 
 __version__ = "0.1.0"
@@ -32,6 +34,15 @@ _EXPORTS = {
     "log_likelihood": "objective",
     "fit": "fit",
     "FitResult": "fit",
+    "sample": "posterior",
+    "Posterior": "posterior",
+    "profile_intervals": "profile",
+    "Profiles": "profile",
+    "format_posterior": "report",
+    "write_posterior": "report",
+    "plot_corner": "plots",
+    "plot_bands": "plots",
+    "plot_profiles": "plots",
     "format_fit": "report",
     "write_fit": "report",
     "plot_traces": "plots",
@@ -52,3 +63,19 @@ def __getattr__(name):
 
 def __dir__():
     return __all__
+
+
+class _Package(types.ModuleType):
+    """Keeps exported functions visible when a submodule of the same name is imported.
+
+    Importing ``kinfit.fit`` (the module) would otherwise replace the
+    attribute ``kinfit.fit`` (the function) with the module.
+    """
+
+    def __setattr__(self, name, value):
+        if name in _EXPORTS and isinstance(value, types.ModuleType):
+            return
+        super().__setattr__(name, value)
+
+
+sys.modules[__name__].__class__ = _Package
