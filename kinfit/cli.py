@@ -102,7 +102,7 @@ def sample_command(
                              help="Folder for posterior.json, chain.npz and figures."),
     walkers: int = typer.Option(32, "--walkers", min=2, help="Walkers of the ensemble (even, "
                                 "at least twice the sampled parameters)."),
-    steps: int = typer.Option(3000, "--steps", min=1, help="Steps of each walker (a resumed "
+    steps: int = typer.Option(2000, "--steps", min=1, help="Steps of each walker (a resumed "
                               "chain continues up to this total)."),
     seed: int = typer.Option(0, "--seed", help="Seed of the fit's start screen, the walkers' "
                              "start and the sampler."),
@@ -112,8 +112,8 @@ def sample_command(
     noise: str = typer.Option("auto", "--noise", help="auto, declared, per-species or shared "
                               "(auto: the experiment's [noise] if declared, else one σ per "
                               "species, sampled)."),
-    moves: str = typer.Option("stretch", "--moves", help="stretch (emcee's default) or de "
-                              "(differential evolution)."),
+    moves: str = typer.Option("de", "--moves", help="de (emcee's differential evolution) or "
+                              "stretch (emcee's own default)."),
     starts: int = typer.Option(8, "--starts", min=1, help="Starting points of the fit."),
     checkpoint_every: int = typer.Option(100, "--checkpoint-every", min=1,
                                          help="Write chain.npz every N steps."),

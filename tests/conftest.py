@@ -109,9 +109,9 @@ def line_data(seed=3, n=11):
     return t, y
 
 
-def write_line_problem(folder, declared=True, seed=3):
-    """Write the straight-line model, experiment and data into `folder`."""
-    t, y = line_data(seed)
+def write_line_problem(folder, declared=True, seed=3, n=11):
+    """Write the straight-line model, experiment and data (`n` points) into `folder`."""
+    t, y = line_data(seed, n)
     noise = f"[noise]\ndefault = {{ absolute = {LINE_SIGMA} }}" if declared else ""
     model = write(folder, "line_model.toml", LINE_MODEL)
     exp = write(folder, "line_experiment.toml", LINE_EXPERIMENT.format(noise=noise))
