@@ -109,16 +109,22 @@ def format_fit(result, cautions=True):
                     strong.append(f"{names[i]}–{names[j]} {c:+.3f}")
         if strong:
             out.append(f"     strong correlations: {', '.join(strong)}")
-    if result.warnings:
+    return "\n".join(out + _warnings_and_cautions(result.warnings, cautions))
+
+
+def _warnings_and_cautions(warnings, cautions):
+    """The closing lines of a summary: its warnings and (optionally) the cautions."""
+    out = []
+    if warnings:
         out += ["", "Warnings"]
-        for w in result.warnings:
+        for w in warnings:
             out += textwrap.wrap(w, 88, initial_indent="  - ", subsequent_indent="    ",
                                  break_on_hyphens=False)
     if cautions:
         out += ["", "Caution"] + textwrap.wrap(CAUTIONS, 88, initial_indent="  ",
                                                subsequent_indent="  ",
                                                break_on_hyphens=False)
-    return "\n".join(out)
+    return out
 
 
 def figure_bytes(fig, fmt="png", dpi=150):
@@ -270,16 +276,7 @@ def format_posterior(post, cautions=True):
         prior = post.priors[name]
         src = " (from the model file)" if prior.source == "model file" else ""
         out.append(f"  {name}: {prior.describe(post.units.get(name) or '')}{src}")
-    if post.warnings:
-        out += ["", "Warnings"]
-        for w in post.warnings:
-            out += textwrap.wrap(w, 88, initial_indent="  - ", subsequent_indent="    ",
-                                 break_on_hyphens=False)
-    if cautions:
-        out += ["", "Caution"] + textwrap.wrap(CAUTIONS, 88, initial_indent="  ",
-                                               subsequent_indent="  ",
-                                               break_on_hyphens=False)
-    return "\n".join(out)
+    return "\n".join(out + _warnings_and_cautions(post.warnings, cautions))
 
 
 def write_posterior(out_dir, post):
