@@ -107,7 +107,7 @@ class ChainState:
     random_state : tuple
         State of the sampler's ``numpy.random.RandomState`` after the last step.
     elapsed : float
-        Wall time spent sampling, seconds (all sessions together).
+        Wall time spent sampling, seconds (interrupted and resumed runs together).
     n_evaluations : int
         Parameter sets whose log-probability was computed.
     """
@@ -387,7 +387,7 @@ def run_ensemble(log_prob, start, n_steps, seed=0, *, moves="de", resume=None,
         Called with a :class:`ChainState` every `checkpoint_every` steps, at
         the end, and before a KeyboardInterrupt propagates.
     max_time : float, optional
-        Stop after this many seconds of sampling (counting earlier sessions).
+        Stop after this many seconds of sampling (counting the time before a resume).
     progress : bool, optional
         Show a progress bar on stderr; by default only when it is a terminal.
 

@@ -119,7 +119,7 @@ def summarise(results, label):
             cells.append(f"{100 * hits / n:5.1f}% [{100 * ci.low:4.1f}, {100 * ci.high:5.1f}]")
         print(f"  {kind:<11} " + " ".join(f"{c:>20}" for c in cells))
     converged = sum(r["converged"] for r in results)
-    print(f"  (in brackets: 95 % Clopper-Pearson interval of the coverage)")
+    print("  (in brackets: 95 % Clopper-Pearson interval of the coverage)")
     print(f"  chains converged: {converged} of {n}; median chain/τ "
           f"{np.median([r['tau_multiple'] for r in results]):.0f}, median largest R-hat "
           f"{np.median([r['max_rhat'] for r in results]):.3f}; median "
