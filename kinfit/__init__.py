@@ -48,6 +48,19 @@ _EXPORTS = {
     "plot_traces": "plots",
     "plot_residuals": "plots",
     "plot_trajectory": "plots",
+    "plot_arrhenius": "plots",
+    "plot_eyring": "plots",
+    "plot_prediction": "plots",
+    "rate_constant": "temperature",
+    "activation_parameters": "activation",
+    "Activation": "activation",
+    "with_posterior": "activation",
+    "with_profile": "activation",
+    "TwoStage": "two_stage",
+    "predict": "prediction",
+    "Prediction": "prediction",
+    "basis_from_fit": "prediction",
+    "format_activation": "report",
 }
 
 __all__ = sorted(_EXPORTS) + ["__version__"]

@@ -69,6 +69,11 @@ def fit_command(
     starts: int = typer.Option(8, "--starts", min=1,
                                help="Starting points refined by least squares."),
     seed: int = typer.Option(0, "--seed", help="Seed of the start screen."),
+    two_stage: str = typer.Option("free", "--two-stage",
+                                  help="For a model with a [temperature] table: the two-stage "
+                                       "analysis beside the global fit, with 'free' orders at "
+                                       "each temperature, orders fixed at the 'global' fit's "
+                                       "values, or 'none'."),
 ):
     """Fit a model to every run of an experiment at once.
 
@@ -76,9 +81,17 @@ def fit_command(
     and standard error, and the fit statistics; writes result.json, fit.png,
     residuals.png, fitted_curves.csv and summary.txt into --out.
 
+    When the model's rate constants depend on temperature (a [temperature]
+    table), all runs at all temperatures are fitted together and the
+    activation parameters (Ea, A, ΔH‡, ΔS‡, ΔG‡) are printed beside a
+    two-stage analysis; temperature.json, arrhenius.png and eyring.png are
+    written too.
+
     Example:
 
       kinfit fit demo/experiment.toml --model demo/thiol_addition.toml --out results
+
+      kinfit fit demo/temperature/experiment.toml --model demo/temperature/ester_hydrolysis.toml --out results
     """
     with _handled():
         from .data import load_experiment
@@ -86,12 +99,35 @@ def fit_command(
         from .mechanism import load_mechanism
         from .report import format_fit, write_fit
 
+        if two_stage not in ("free", "global", "none"):
+            raise KinfitError(f"--two-stage {two_stage}: expected free, global or none")
         exp = load_experiment(experiment)
         mech = load_mechanism(model)
         result = fit(exp, mech, starts=starts, seed=seed)
-        written = write_fit(out, result)
+        files, summary = {}, None
+        if mech.temperature is not None:
+            files, summary = _temperature_outputs(exp, mech, result, two_stage, seed)
+        written = write_fit(out, result, extra_files=files, extra_summary=summary)
         typer.echo(format_fit(result))
+        if summary:
+            typer.echo("\n" + summary)
         typer.echo(f"\nWrote {', '.join(p.name for p in written)} in {out}")
+
+
+def _temperature_outputs(exp, mech, result, two_stage, seed):
+    from .activation import activation_parameters
+    from .prediction import basis_from_fit
+    from .report import temperature_outputs
+    from .two_stage import two_stage as run_two_stage
+
+    activations = activation_parameters(result)
+    analysis = None
+    if two_stage != "none":
+        try:
+            analysis = run_two_stage(exp, mech, result, orders=two_stage, starts=1, seed=seed)
+        except KinfitError as exc:   # the global fit stands on its own
+            typer.echo(f"warning: the two-stage analysis was skipped: {exc}", err=True)
+    return temperature_outputs(activations, analysis, basis_from_fit(result), result)
 
 
 @app.command("sample")
@@ -186,14 +222,33 @@ def simulate_command(
     time_unit: str = typer.Option("s", "--time-unit", help="Time unit, for labels."),
     concentration_unit: str = typer.Option("M", "--concentration-unit",
                                            help="Concentration unit, for labels."),
+    temperature: Optional[float] = typer.Option(
+        None, "--temperature", "-T",
+        help="Temperature to predict at, for a model with a [temperature] table."),
+    temperature_unit: str = typer.Option("K", "--temperature-unit",
+                                         help="Unit of --temperature: K or degC."),
+    fit_file: Optional[Path] = typer.Option(
+        None, "--fit",
+        help="temperature.json written by 'kinfit fit': predict from the fitted values with "
+             "an uncertainty band, and flag conditions outside the fitted range."),
+    draws: int = typer.Option(200, "--draws", min=0,
+                              help="Parameter draws for the uncertainty band (with --fit)."),
+    seed: int = typer.Option(0, "--seed", help="Seed of the parameter draws."),
     out: Path = typer.Option(Path("kinfit-simulation"), "--out", "-o",
                              help="Folder for simulation.csv and simulation.png."),
 ):
     """Predict concentrations over time for given starting concentrations.
 
+    With --temperature (for a model whose rate constants depend on it) and
+    --fit, the prediction carries the fit's uncertainty and is flagged
+    EXTRAPOLATED when the temperature or a starting concentration lies
+    outside the fitted range; prediction.json is written too.
+
     Example:
 
       kinfit simulate models/consecutive.toml -i A=1.0 --set k1=0.5 --set k2=0.1 --until 60
+
+      kinfit simulate demo/temperature/ester_hydrolysis.toml -i ester=20 -i hydroxide=40 -T 30 --temperature-unit degC --fit results/temperature.json --until 60
     """
     with _handled():
         import numpy as np
@@ -208,6 +263,11 @@ def simulate_command(
         units = Units(check_unit(time_unit, "time", "--time-unit"),
                       check_unit(concentration_unit, "concentration", "--concentration-unit"))
         mech = load_mechanism(model)
+        if temperature is not None or fit_file is not None or mech.temperature is not None:
+            _predict(mech, model, _pairs(initial, "--initial"), _pairs(set_, "--set"),
+                     np.linspace(0.0, until, points), units, temperature, temperature_unit,
+                     fit_file, draws, seed, out)
+            return
         traj = simulate(mech, _pairs(initial, "--initial"), _pairs(set_, "--set"),
                         np.linspace(0.0, until, points))
         if not traj.success:
@@ -218,6 +278,41 @@ def simulate_command(
         typer.echo(f"{mech.name}: at t = {until:g} {units.time}: {last} "
                    f"{units.concentration}")
         typer.echo(f"Wrote {', '.join(p.name for p in written)} in {out}")
+
+
+def _predict(mech, model, initial, overrides, times, units, temperature, temperature_unit,
+             fit_file, draws, seed, out):
+    """The prediction path of ``simulate``: temperature, fit basis, band and flags."""
+    from .prediction import FittedRange, PredictionBasis, load_basis, predict
+    from .report import format_prediction, write_prediction
+    from .units import check_unit, to_kelvin
+
+    kelvin = None
+    if temperature is not None:
+        unit = check_unit(temperature_unit, "temperature", "--temperature-unit")
+        kelvin = to_kelvin(temperature, unit)
+        if not kelvin > 0:
+            raise KinfitError(f"--temperature {temperature:g} {unit}: at or below absolute zero")
+    if mech.temperature is not None and kelvin is None:
+        raise KinfitError(f"{model}: the model's rate constants depend on temperature; give "
+                          f"--temperature (and --temperature-unit degC for °C)")
+    if fit_file is not None:
+        if overrides:
+            raise KinfitError("--set and --fit cannot be combined: with --fit the fitted "
+                              "values and their uncertainty are used")
+        basis = load_basis(fit_file, mech)
+        typer.echo(f"Using the fit in {fit_file} (units {basis.units.time} and "
+                   f"{basis.units.concentration})")
+    else:
+        spec = mech.temperature
+        basis = PredictionBasis(mechanism=mech, values=mech.values(overrides), free_names=(),
+                                covariance=None,
+                                reference=None if spec is None else spec.reference,
+                                fitted=FittedRange(None, {}), units=units, source=str(model))
+    prediction = predict(basis, initial, times, kelvin, draws=draws, seed=seed)
+    written = write_prediction(out, prediction, mech.name)
+    typer.echo(format_prediction(prediction, mech.name))
+    typer.echo(f"Wrote {', '.join(p.name for p in written)} in {out}")
 
 
 @app.command("demo")

@@ -1,4 +1,4 @@
-"""Global least-squares fit of a mechanism to every run at once, with lmfit.
+"""Global least-squares fit of a mechanism to every run at once.
 
 All runs are fitted together: rate constants and orders are shared by every
 run; fitted initial concentrations and time offsets belong to one run each.
@@ -13,12 +13,14 @@ How the fit is set up
   Latin-hypercube screen of the start box (all screened sets are evaluated in
   one vectorised integration). The start box is the bounds where they are
   finite, else ±2 decades around a rate constant's start, ±1.5 around an
-  order, ±50 % around an initial concentration. Each start is refined by
-  lmfit's trust-region least squares; the best is kept and the number of
+  order, ±50 % around an initial concentration. Each start is refined by a
+  bounded Levenberg–Marquardt loop; the best is kept and the number of
   starts that reached it is reported.
-* The Jacobian is computed by forward differences with the base point and
-  all displaced points integrated in one call, so they share one step
-  sequence and the differences are smooth.
+* The Jacobian is exact: forward sensitivity equations are integrated with
+  the states (:mod:`kinfit.compiled`), so one integration gives residuals and
+  Jacobian together. lmfit is used at the edges — the result converts to
+  :class:`lmfit.Parameters` — not inside the loop, where its parameter
+  objects would cost more than the integration.
 * Standard errors come from (JᵀJ)⁻¹, scaled by the reduced χ² when the noise
   is estimated from the fit and unscaled when it is declared.
 """
@@ -35,12 +37,14 @@ from .errors import KinfitError
 from .mechanism import ROLE_ORDER, ROLE_RATE_CONSTANT, format_rate_law
 from .objective import FAILED_RESIDUAL, build_problem, information_criteria
 from .simulate import Trajectory
+from .temperature import ENERGY_UNIT, ROLE_ACTIVATION_ENERGY, ROLE_ACTIVATION_ENTHALPY
 
 __all__ = ["FitResult", "fit", "DEFAULT_STARTS"]
 
 DEFAULT_STARTS = 8
-_FD_STEP = 1e-7
 _SCREEN_RHS = 5_000
+_STEP_CAP_LOG = 2.0   # largest move of log10 k in one iteration (decades)
+_STEP_CAP_REL = 1.0   # largest move elsewhere, relative to the value (or its scale)
 _LN10 = math.log(10.0)
 
 
@@ -119,7 +123,7 @@ class FitResult:
     n_evaluations: int = 0
     n_integrations: int = 0
     n_failed: int = 0
-    method: str = "LSODA"
+    method: str = "auto"
     at_bounds: tuple = ()
     bounds: dict = field(default_factory=dict, repr=False)
 
@@ -150,6 +154,22 @@ class FitResult:
                 "overall_order": law.overall_order(self.values),
             })
         return out
+
+    def lmfit_parameters(self):
+        """The fitted parameters as :class:`lmfit.Parameters` (values, bounds, standard
+        errors and correlations), for users who continue in lmfit."""
+        import lmfit
+
+        params = lmfit.Parameters()
+        for name, value in self.values.items():
+            lo, hi, vary = self.bounds.get(name, (-math.inf, math.inf, False))
+            params.add(name, value=value, min=lo, max=hi, vary=vary)
+            params[name].stderr = self.stderr.get(name)
+        if self.correlation is not None:
+            for i, a in enumerate(self.free_names):
+                params[a].correl = {b: float(self.correlation[i, j])
+                                    for j, b in enumerate(self.free_names) if b != a}
+        return params
 
     def to_dict(self):
         """Plain-Python summary (the content of ``result.json``)."""
@@ -257,36 +277,52 @@ class _Layout:
 
 
 class _Evaluator:
-    """Counts model evaluations and integrations for the fit report."""
+    """Evaluates residuals (and their exact Jacobian) on the fitting scale.
+
+    One integration gives both the residuals and, through forward
+    sensitivities, their Jacobian; the last one is cached so that the
+    optimiser's separate calls for residuals and Jacobian at one point cost a
+    single integration. Counts evaluations and integrations for the report.
+    """
 
     def __init__(self, problem, layout):
         self.problem, self.layout = problem, layout
         self.evaluations = self.integrations = self.failed = 0
+        self.n_compiled = self.n_stiff = self.n_implicit = 0
+        self._cache_u = None
+        self._cache = None
 
-    def residuals(self, u, max_rhs=None):
-        res = self.problem.residuals(self.layout.to_values(u), max_rhs=max_rhs)
+    def _count(self, n_sets, ok, info):
         self.integrations += 1
-        self.evaluations += res.shape[0]
-        self.failed += int((res[:, 0] == FAILED_RESIDUAL).sum())
-        return res
+        self.evaluations += n_sets
+        self.failed += int((~ok).sum())
+        self.n_compiled += info.n_compiled
+        self.n_stiff += info.n_stiff
+        self.n_implicit += info.n_implicit
 
-    def jacobian(self, u):
-        """Forward-difference Jacobian [n_points, n_free] from one batched integration."""
-        n = u.size
-        h = _FD_STEP * np.maximum(np.abs(u), self.layout.scale)
-        h = np.where(u + h > self.layout.hi, -h, h)
-        sets = np.repeat(u[None], n + 1, axis=0)
-        sets[1:][np.arange(n), np.arange(n)] += h
-        res = self.residuals(sets)
-        jac = (res[1:] - res[0]) / h[:, None]
-        bad = (res[1:, 0] == FAILED_RESIDUAL) | (res[0, 0] == FAILED_RESIDUAL)
-        jac[bad] = 0.0
-        return jac.T
+    def residuals(self, u, max_rhs=None, fallback=True):
+        """Residual rows [n_sets, n_points] for fitting-scale rows `u` (no Jacobian)."""
+        values = self.layout.to_values(u)
+        pred, ok, _, info = self.problem.evaluate(values, max_rhs=max_rhs, fallback=fallback)
+        self._count(values.shape[0], ok, info)
+        return self.problem._weigh(pred, ok)
+
+    def both(self, u):
+        """(residuals [n_points], Jacobian [n_points, n_free]) at one point, cached."""
+        u = np.asarray(u, dtype=float)
+        if self._cache_u is not None and np.array_equal(u, self._cache_u):
+            return self._cache
+        values = self.layout.to_values(u)
+        res, jac, ok, info = self.problem.residuals_jacobian(values)
+        self._count(1, np.array([ok]), info)
+        jac_u = jac[:, self.layout.free] * self.layout.natural_slope(u)[None, :]
+        self._cache_u, self._cache = u.copy(), (res, jac_u)
+        return self._cache
 
 
 # -------------------------------------------------------------------- fit
 
-def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="LSODA",
+def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="auto",
         max_evaluations=None):
     """Fit `mechanism` to all runs of `experiment` at once.
 
@@ -300,9 +336,10 @@ def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="LSODA",
     seed : int
         Seed of the start screen (the fit is otherwise deterministic).
     method : str
-        Integrator, see :func:`kinfit.simulate.integrate`.
+        Integrator, see :func:`kinfit.simulate.integrate_flat` (default
+        "auto": compiled explicit, LSODA where stiff).
     max_evaluations : int, optional
-        Bound on residual evaluations per start (default 200 (p + 1)).
+        Bound on residual evaluations per start (default 100 (p + 1)).
 
     Returns
     -------
@@ -342,62 +379,136 @@ def _start_points(evaluator, layout, starts, seed):
     n_screen = max(16, 4 * starts)
     sampler = qmc.LatinHypercube(d=layout.u0.size, seed=np.random.default_rng(seed))
     cand = layout.box_lo + sampler.random(n_screen) * (layout.box_hi - layout.box_lo)
-    # Screen one candidate at a time with a small work bound: a candidate whose
-    # equations are very hard to integrate is a poor start and is skipped
-    # quickly instead of slowing a stacked integration of all of them.
-    chi2 = np.array([np.sum(evaluator.residuals(c, max_rhs=_SCREEN_RHS) ** 2) for c in cand])
+    # All candidates in one call, with a small work bound and no hand-over to
+    # the implicit integrator: a candidate whose equations are very hard to
+    # integrate is a poor start and is dropped cheaply.
+    chi2 = np.sum(evaluator.residuals(cand, max_rhs=_SCREEN_RHS, fallback=False) ** 2, axis=1)
     order = np.argsort(chi2)
     points.extend(cand[i] for i in order[:starts - 1])
     return points
 
 
 def _local_fit(evaluator, u0, max_evaluations):
-    """Refine one start with lmfit's least_squares.
+    """Refine one start by Levenberg–Marquardt with the exact Jacobian.
+
+    A compact bounded Levenberg–Marquardt loop on plain arrays (Marquardt's
+    diagonal scaling, Nielsen's damping update, steps projected onto the
+    bounds with variables held at an active bound): with exact Jacobians the
+    problems are small and well scaled, and a loop in a few lines of numpy
+    costs far less per iteration than a general-purpose solver. It stops when
+    a further Gauss–Newton step would lower χ² by less than 1e-10 σ̂², that is
+    move the parameters by less than about 1e-5 of their standard errors. lmfit
+    stays at the edges (see :meth:`FitResult.lmfit_parameters`).
 
     Returns
     -------
     tuple
         (u, chi2, success, message, number of failed evaluations on the way)
     """
-    import lmfit
-
-    failed_before = evaluator.failed
     layout = evaluator.layout
-    internal = [f"log10_{n}" if log else n for n, log in zip(layout.names, layout.log)]
-    params = lmfit.Parameters()
-    for name, u, a, b in zip(internal, u0, layout.lo, layout.hi):
-        params.add(name, value=float(np.clip(u, a, b)), min=a, max=b)
+    lo, hi = layout.lo, layout.hi
+    failed_before = evaluator.failed
+    u = np.clip(np.asarray(u0, dtype=float), lo, hi)
+    n = u.size
+    dof = max(evaluator.problem.observation.n_points - n, 1)
+    max_evaluations = max_evaluations or 100 * (n + 1)
+    res, jac = evaluator.both(u)
+    chi2 = float(res @ res)
+    if not np.isfinite(chi2) or np.any(res == FAILED_RESIDUAL):
+        return (u, math.inf, False, "the model could not be integrated at the starting values",
+                evaluator.failed - failed_before)
+    damping, growth = 1e-3, 2.0
+    message, success = "stopped after the largest number of evaluations", False
+    evaluations = 1
+    while evaluations < max_evaluations:
+        grad = jac.T @ res
+        normal = jac.T @ jac
+        free = ~(((u <= lo) & (grad > 0)) | ((u >= hi) & (grad < 0)))
+        if not free.any():
+            message, success = "converged at the bounds", True
+            break
+        nf = normal[np.ix_(free, free)]
+        gf = grad[free]
+        scale = 1.0 if evaluator.problem.sigma_known else chi2 / dof
+        gauss_newton = np.linalg.lstsq(nf, -gf, rcond=None)[0]
+        if -float(gf @ gauss_newton) < 1e-10 * max(scale, 1e-300):
+            message = ("converged: a further Gauss-Newton step would move the parameters by "
+                       "less than 1e-5 standard errors")
+            success = True
+            break
+        diag = np.diag(nf).copy()
+        diag[diag <= 0] = 1.0
+        try:
+            step_f = np.linalg.solve(nf + damping * np.diag(diag), -gf)
+        except np.linalg.LinAlgError:
+            step_f = np.linalg.lstsq(nf + damping * np.diag(diag), -gf, rcond=None)[0]
+        step = np.zeros(n)
+        step[free] = step_f
+        # keep each move modest (a decade in a rate constant, about the size of
+        # the value elsewhere), so that a first step from a poor start cannot
+        # leap onto a plateau where the data no longer constrain anything
+        cap = np.where(layout.log, _STEP_CAP_LOG,
+                       _STEP_CAP_REL * np.maximum(layout.scale, np.abs(u)))
+        over = np.max(np.abs(step) / cap)
+        if over > 1.0:
+            step /= over
+        trial = np.clip(u + step, lo, hi)
+        step = trial - u
+        predicted = -(2.0 * float(step @ grad) + float(step @ normal @ step))
+        if not np.any(step) or predicted <= 0:
+            damping *= growth
+            growth *= 2.0
+            if damping > 1e16:
+                message, success = "converged: no step lowers χ² any further", True
+                break
+            continue
+        res_new, jac_new = evaluator.both(trial)
+        evaluations += 1
+        chi2_new = float(res_new @ res_new)
+        if np.isfinite(chi2_new) and chi2_new < chi2 and not np.any(res_new == FAILED_RESIDUAL):
+            rho = (chi2 - chi2_new) / predicted
+            u, res, jac, chi2 = trial, res_new, jac_new, chi2_new
+            damping *= max(1.0 / 3.0, 1.0 - (2.0 * rho - 1.0) ** 3)
+            growth = 2.0
+        else:
+            damping *= growth
+            growth *= 2.0
+            if damping > 1e16:
+                message, success = "converged: no step lowers χ² any further", True
+                break
+    if not success:
+        return _trust_region_fit(evaluator, u, max_evaluations, failed_before)
+    return u, chi2, success, message, evaluator.failed - failed_before
 
-    def vector(p):
-        return np.array([p[n].value for n in internal])
 
-    def residual(p):
-        return evaluator.residuals(vector(p))[0]
+def _trust_region_fit(evaluator, u0, max_evaluations, failed_before):
+    """Fallback when Levenberg–Marquardt has not converged: scipy's trust-region
+    reflective least squares from the best point so far."""
+    from scipy.optimize import least_squares
 
-    def jac(p):
-        return evaluator.jacobian(vector(p))
-
-    minimizer = lmfit.Minimizer(residual, params)
-    n = len(internal)
-    out = minimizer.least_squares(jac=jac, x_scale="jac", ftol=1e-10, xtol=1e-10, gtol=1e-10,
-                                  max_nfev=max_evaluations or 200 * (n + 1))
-    u = vector(out.params)
-    chi2 = float(np.sum(out.residual ** 2))
+    layout = evaluator.layout
+    out = least_squares(lambda u: evaluator.both(u)[0], u0, jac=lambda u: evaluator.both(u)[1],
+                        bounds=(layout.lo, layout.hi), method="trf", x_scale="jac",
+                        ftol=1e-10, xtol=1e-10, gtol=1e-10, max_nfev=max_evaluations)
+    res = evaluator.both(out.x)[0]
+    chi2 = float(res @ res)
     failed = evaluator.failed - failed_before
-    if not np.isfinite(chi2) or np.any(out.residual == FAILED_RESIDUAL):
-        return u, math.inf, False, "the model could not be integrated at the final values", failed
-    success = bool(out.success) and not out.aborted
-    message = out.message if isinstance(out.message, str) else str(out.message)
-    return u, chi2, success, message, failed
+    if not np.isfinite(chi2) or np.any(res == FAILED_RESIDUAL):
+        return (out.x, math.inf, False, "the model could not be integrated at the final values",
+                failed)
+    return out.x, chi2, bool(out.success), f"trust-region fallback: {out.message}", failed
 
 
 def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, failed):
     values_row = layout.to_values(u)[0]
     names = problem.names
     values = {n: float(v) for n, v in zip(names, values_row)}
-    res = evaluator.residuals(u)[0]
-    pred, _ = problem.predict(values_row)
-    pred = pred[0]
+    if layout.free:
+        res, jac = evaluator.both(u)
+    else:
+        res, jac = evaluator.residuals(u)[0], None
+    pred = res * problem.observation.sigma if problem.sigma_known else res.copy()
+    pred = pred + problem.observation.values
     n_points, n_free = res.size, len(layout.free)
     chi2 = float(res @ res)
     declared = problem.sigma_known
@@ -411,7 +522,6 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
                       if (math.isfinite(a) and x - a <= 1e-6 * max(1.0, abs(a)))
                       or (math.isfinite(b) and b - x <= 1e-6 * max(1.0, abs(b))))
     if n_free:
-        jac = evaluator.jacobian(u)
         covariance, singular = _covariance(jac, layout.natural_slope(u),
                                            1.0 if declared else chi2 / dof, layout.names)
         if singular:
@@ -460,6 +570,8 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
             units[p.name] = exp.units.concentration
         elif p.role == ROLE_TIME_OFFSET:
             units[p.name] = exp.units.time
+        elif p.role in (ROLE_ACTIVATION_ENERGY, ROLE_ACTIVATION_ENTHALPY):
+            units[p.name] = ENERGY_UNIT
         else:
             units[p.name] = ""
     for name, order in overall.items():
@@ -475,8 +587,22 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
         curves=_curves(problem, values_row), success=success, message=message,
         warnings=tuple(warnings), starts=n_starts, starts_at_best=at_best,
         n_evaluations=evaluator.evaluations, n_integrations=evaluator.integrations,
-        n_failed=evaluator.failed, method=problem.method, at_bounds=at_bounds,
+        n_failed=evaluator.failed, method=_integrator_text(problem.method, evaluator),
+        at_bounds=at_bounds,
         bounds={p.name: (p.min, p.max, p.vary) for p in problem.parameters})
+
+
+def _integrator_text(method, evaluator):
+    """Which integrator did the work, in words."""
+    if method not in ("auto", "compiled"):
+        return method
+    text = "compiled Dormand-Prince 5(4)"
+    if evaluator.n_stiff:
+        text += (f"; compiled Rosenbrock 4(3) for {evaluator.n_stiff} stiff run "
+                 f"evaluation(s)")
+    if evaluator.n_implicit:
+        text += f"; LSODA for {evaluator.n_implicit} run evaluation(s)"
+    return text
 
 
 def _covariance(jac, slope, scale, names):
@@ -502,5 +628,8 @@ def _curves(problem, values_row, n=200):
                                        problem.observation.run_times[r]]))
              for r, run in enumerate(problem.experiment.runs)]
     conc, ok, info = problem.simulate(values_row, times=grids)
+    method = problem.method if problem.method not in ("auto", "compiled") else (
+        "LSODA" if info.n_implicit else "compiled Rosenbrock 4(3)" if info.n_stiff
+        else "compiled Dormand-Prince 5(4)")
     return tuple(Trajectory(g, c[0], problem.mechanism.species, bool(ok[0]), info.message,
-                            info.method) for g, c in zip(grids, conc))
+                            method) for g, c in zip(grids, conc))

@@ -35,6 +35,7 @@ from .expressions import (PARAMETER_NAME, SPECIES_NAME, ParseError, PowerLaw, Re
                           parse_reaction, to_power_law)
 from .priors import parse_prior
 from .sources import find_line, load_toml
+from .temperature import check_roles, parse_temperature
 
 __all__ = ["Parameter", "Step", "Mechanism", "load_mechanism", "mechanism_from_text",
            "rates", "rhs", "jacobian", "format_rate_law"]
@@ -42,7 +43,7 @@ __all__ = ["Parameter", "Step", "Mechanism", "load_mechanism", "mechanism_from_t
 ROLE_RATE_CONSTANT = "rate constant"
 ROLE_ORDER = "order"
 
-_MODEL_KEYS = {"name", "description", "held_constant", "steps", "parameters"}
+_MODEL_KEYS = {"name", "description", "held_constant", "steps", "parameters", "temperature"}
 _STEP_KEYS = {"reaction", "rate", "reverse_rate", "label"}
 _PARAMETER_KEYS = {"value", "min", "max", "vary", "prior"}
 
@@ -117,6 +118,8 @@ class Mechanism:
         In file order.
     source : str
         File the mechanism came from (``"<text>"`` if none).
+    temperature : TemperatureSpec or None
+        Rate constants that depend on temperature (see :mod:`kinfit.temperature`).
     stoichiometry : ndarray [n_species, n_directions]
         Net stoichiometric numbers; zero rows for held-constant species.
     directions : tuple of (step index, PowerLaw, sign)
@@ -130,6 +133,7 @@ class Mechanism:
     parameters: dict[str, Parameter]
     source: str = "<text>"
     description: str = ""
+    temperature: object = None
     stoichiometry: np.ndarray = field(default=None, repr=False, compare=False)
     directions: tuple = field(default=(), repr=False, compare=False)
     _factor: np.ndarray = field(default=None, repr=False, compare=False)
@@ -395,10 +399,14 @@ def _build(table, text, source, default_name):
                         f"other species whose concentration stays constant, declare it: "
                         f"held_constant = [\"{s}\"]")
 
-    parameters = _parse_parameters(table.get("parameters", {}), steps, text, source)
+    temperature = None
+    if "temperature" in table:
+        temperature = parse_temperature(table["temperature"], text, source)
+    parameters = _parse_parameters(table.get("parameters", {}), steps, text, source,
+                                   temperature)
     return _compile(Mechanism(name=name, species=tuple(species), held_constant=tuple(held),
                               steps=steps, parameters=parameters, source=source,
-                              description=description))
+                              description=description, temperature=temperature))
 
 
 def _parse_step(index, raw, text, source):
@@ -452,7 +460,7 @@ def _parse_step(index, raw, text, source):
     return Step(reaction, forward, reverse, label, line)
 
 
-def _parse_parameters(raw, steps, text, source):
+def _parse_parameters(raw, steps, text, source, temperature=None):
     if not isinstance(raw, dict):
         raise KinfitError(f"{where(source, find_line(text, None, 'parameters'))}: "
                           f"[parameters] must be a table")
@@ -478,6 +486,10 @@ def _parse_parameters(raw, steps, text, source):
             raise KinfitError(f"{where(source, line, f'{step.label}.{key}')}: {pname} is used "
                               f"in the rate law but not defined; add it under [parameters], "
                               f"e.g. {pname} = {{ value = 1.0, min = 0 }}")
+
+    if temperature is not None:
+        check_roles(temperature, roles, raw, text, source)
+        roles.update(temperature.energy_roles)
 
     parameters = {}
     for pname, spec in raw.items():

@@ -764,7 +764,7 @@ def sample(experiment, mechanism, walkers=DEFAULT_WALKERS, steps=DEFAULT_STEPS, 
     _moves(moves)
     if fit_result is None:
         fit_result = fit(experiment, mechanism, starts=starts, seed=seed)
-    problem = build_problem(mechanism, experiment, method=fit_result.method)
+    problem = build_problem(mechanism, experiment)
     space = parameter_space(problem, noise=noise)
     if space.n_dim == 0:
         raise KinfitError("nothing to sample: every parameter is fixed and the noise is "

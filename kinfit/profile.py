@@ -255,8 +255,7 @@ def profile_intervals(fit_result, levels=LEVELS, names=None):
     levels = tuple(sorted(float(lv) for lv in levels))
     if not levels or not all(0.0 < lv < 1.0 for lv in levels):
         raise KinfitError(f"profile levels must be between 0 and 1, got {levels}")
-    problem = build_problem(fit_result.mechanism, fit_result.experiment,
-                            method=fit_result.method)
+    problem = build_problem(fit_result.mechanism, fit_result.experiment)
     space = parameter_space(problem, with_noise=False)
     unknown = [n for n in (names or ()) if n not in space.names]
     if unknown:

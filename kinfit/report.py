@@ -18,7 +18,8 @@ from .atomic import write_bytes, write_json, write_text
 from .errors import KinfitError
 
 __all__ = ["CAUTIONS", "format_value", "format_fit", "write_fit", "write_simulation",
-           "figure_bytes", "format_posterior", "write_posterior"]
+           "figure_bytes", "temperature_cautions", "format_activation", "temperature_outputs",
+           "format_prediction", "write_prediction", "format_posterior", "write_posterior"]
 
 CAUTIONS = (
     "A rate law and its rate constants hold only over the conditions they were measured "
@@ -97,8 +98,10 @@ def format_fit(result, cautions=True):
                f"χ²/(N−p) = {result.reduced_chi2:.3g} ({noise})")
     out.append(f"     AIC = {result.aic:.6g}, AICc = {result.aicc:.6g}, BIC = {result.bic:.6g}")
     out.append(f"     {result.starts_at_best} of {result.starts} starting point(s) reached the "
-               f"best fit; {result.n_integrations} integrations ({result.method}); "
-               f"{'converged' if result.success else 'NOT converged'}")
+               f"best fit; {'converged' if result.success else 'NOT converged'}; "
+               f"{result.n_integrations} integrations")
+    out += textwrap.wrap(f"integrators: {result.method}", 88, initial_indent="     ",
+                         subsequent_indent="       ")
     if result.correlation is not None:
         strong = []
         names = result.free_names
@@ -149,12 +152,22 @@ def _prepare(out_dir):
     return out_dir
 
 
-def write_fit(out_dir, result):
+def write_fit(out_dir, result, extra_files=None, extra_summary=None):
     """Write a fit's outputs into `out_dir`.
 
     Files: ``result.json`` (see :meth:`FitResult.to_dict`), ``summary.txt``,
     ``fit.png``/``fit.svg`` (data and fitted curves), ``residuals.png``/
     ``residuals.svg`` and ``fitted_curves.csv``.
+
+    Parameters
+    ----------
+    out_dir : str or os.PathLike
+    result : FitResult
+    extra_files : dict of str to bytes or str, optional
+        More files to write beside them (already computed), e.g. from
+        :func:`temperature_outputs`.
+    extra_summary : str, optional
+        Text appended to ``summary.txt``.
 
     Returns
     -------
@@ -168,6 +181,10 @@ def write_fit(out_dir, result):
     payload = {f"{name}.{fmt}": figure_bytes(fig, fmt)
                for name, fig in figures.items() for fmt in ("png", "svg")}
     summary = format_fit(result)
+    if extra_summary:
+        summary += "\n\n" + extra_summary
+    payload.update({name: blob.encode("utf-8") if isinstance(blob, str) else blob
+                    for name, blob in (extra_files or {}).items()})
     curves = _curves_csv(result)
     data = result.to_dict()
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -202,9 +219,278 @@ def write_simulation(out_dir, trajectory, units=None, title=None):
     return [out_dir / "simulation.csv", out_dir / "simulation.png"]
 
 
-# ----------------------------------------------------------------- posterior
+# ------------------------------------------------------------ temperature
+
+def _celsius(kelvin):
+    from scipy.constants import convert_temperature
+
+    return float(convert_temperature(kelvin, "K", "C"))
+
+
+def _kelvin_celsius(kelvin):
+    return f"{kelvin:.2f} K ({_celsius(kelvin):.1f} °C)"
+
+
+def temperature_cautions(temperature_range=None):
+    """The cautions shown with every temperature fit and prediction.
+
+    Parameters
+    ----------
+    temperature_range : (float, float), optional
+        The measured range, kelvin, quoted in the text.
+    """
+    measured = ("the measured temperature range" if temperature_range is None else
+                f"the measured range, {_kelvin_celsius(temperature_range[0])} to "
+                f"{_kelvin_celsius(temperature_range[1])}")
+    return (
+        f"Activation parameters and the rate constants predicted from them hold only within "
+        f"{measured}, and for the concentrations, solvent and mixing of the runs. "
+        f"Extrapolation beyond the measured range is unsafe: the mechanism, the "
+        f"rate-limiting step or the phase behaviour may change, and a small error in Ea "
+        f"grows fast with distance in 1/T. Rate laws measured at bench scale over a limited "
+        f"temperature range must not alone decide the thermal safety of a scaled-up process "
+        f"(heat release, cooling failure, thermal runaway): defer to reaction calorimetry, "
+        f"a process-safety review, local codes and licensed professional practice."
+    )
+
 
 def _interval(pair, digits=4):
+    if pair is None:
+        return "—"
+    return f"{pair[0]:.{digits}g} – {pair[1]:.{digits}g}"
+
+
+def _law_text(act):
+    if act.law == "arrhenius":
+        return "Arrhenius, k(T) = k_ref exp[−Ea/R (1/T − 1/T_ref)]"
+    return ("Eyring, k(T) = (κ k_B T/h) exp(ΔS‡/R) exp(−ΔH‡/RT), fitted as "
+            f"k_ref (T/T_ref) exp[−ΔH‡/R (1/T − 1/T_ref)], κ = {act.kappa:g}")
+
+
+def format_activation(activations, two_stage=None, result=None, cautions=True):
+    """Text summary of the activation parameters (and the two-stage analysis beside them).
+
+    Parameters
+    ----------
+    activations : sequence of Activation
+    two_stage : TwoStage, optional
+    result : FitResult, optional
+        The global fit; with a two-stage analysis of free orders, its orders
+        are compared with the per-temperature ones.
+    cautions : bool
+        Append :func:`temperature_cautions`.
+    """
+    out = ["Temperature dependence (global fit of all runs at all temperatures)"]
+    level = 100 * (activations[0].level if activations else 0.95)
+    for act in activations:
+        lo, hi = act.temperature_range
+        out.append(f"  {act.constant}: {_law_text(act)}")
+        out.append(f"    T_ref = {_kelvin_celsius(act.reference)}, where {act.constant} "
+                   f"= k_ref; {len(act.rates)} temperatures")
+        out.append(f"    runs from {_kelvin_celsius(lo)} to {_kelvin_celsius(hi)}")
+        rows = []
+        for e in act.estimates:
+            label = e.label + (" (fitted)" if e.fitted else "")
+            rows.append((label, format_value(e.value, e.stderr), e.unit, _interval(e.interval),
+                         _interval(e.profile_interval), _interval(e.posterior_interval)))
+        out += _table(rows, ("quantity", "value ± standard error", "unit",
+                             f"{level:g} % interval", "profile", "posterior"))
+        out.append("    ΔS‡ and ΔG‡ for a standard state of 1 mol/L; profile and posterior "
+                   "intervals")
+        out.append("    appear when those analyses are run")
+        out.append(f"  {act.constant} at each measured temperature ({act.unit or ''})")
+        rows = [(f"{r.temperature:.2f}", f"{_celsius(r.temperature):.1f}",
+                 format_value(r.value, r.stderr), _interval(r.interval))
+                for r in act.rates]
+        out += ["  " + line for line in _table(rows, ("T (K)", "T (°C)",
+                                                       "k ± standard error",
+                                                       f"{level:g} % interval"))]
+        for note in act.notes:
+            out += textwrap.wrap(note, 88, initial_indent="  note: ", subsequent_indent="    ")
+    if two_stage is not None:
+        out += [""] + _format_two_stage(two_stage, activations, result)
+    if cautions:
+        span = activations[0].temperature_range if activations else None
+        out += ["", "Caution (temperature)"] + textwrap.wrap(
+            temperature_cautions(span), 88, initial_indent="  ", subsequent_indent="  ",
+            break_on_hyphens=False)
+    return "\n".join(out)
+
+
+def _format_two_stage(two_stage, activations, result):
+    from .two_stage import order_differences
+
+    how = ("its own orders" if two_stage.orders == "free"
+           else "orders fixed at the global fit's values")
+    out = textwrap.wrap(f"Two-stage analysis (k fitted at each temperature with {how}, then "
+                        f"weighted straight lines of ln k and ln(k/T) against 1/T)", 88,
+                        subsequent_indent="  ")
+    names = [n for n in two_stage.groups[0].values]
+    rows = []
+    for g in two_stage.groups:
+        rows.append((f"{g.temperature:.2f}", ", ".join(g.runs),
+                     *[format_value(g.values[n], g.stderr.get(n)) for n in names]))
+    out += _table(rows, ("T (K)", "runs", *names))
+    level = 100 * two_stage.level
+    for law in two_stage.laws:
+        act = next((a for a in activations if a.constant == law.constant), None)
+        rows = []
+        for e in law.estimates:
+            glob = act.estimate(e.name) if act is not None else None
+            rows.append((e.label, format_value(e.value, e.stderr), e.unit,
+                         _interval(e.interval),
+                         _interval(glob.interval) if glob is not None else "—"))
+        out.append(f"  {law.constant}: {law.arrhenius.n} temperatures")
+        out += _table(rows, ("quantity", "two-stage value ± s.e.", "unit",
+                             f"two-stage {level:g} %", f"global fit {level:g} %"))
+        for note in law.notes:
+            out += textwrap.wrap(note, 88, initial_indent="  note: ", subsequent_indent="    ")
+    if result is not None:
+        for message in order_differences(two_stage, result):
+            out += textwrap.wrap(message, 88, initial_indent="  warning: ",
+                                 subsequent_indent="    ")
+    return out
+
+
+def temperature_outputs(activations, two_stage=None, basis=None, result=None):
+    """Files and summary text of a temperature fit, computed but not written.
+
+    Returns
+    -------
+    files : dict of str to bytes or str
+        ``temperature.json``, ``arrhenius.png``/``.svg`` and
+        ``eyring.png``/``.svg``; pass to :func:`write_fit` as `extra_files`.
+    summary : str
+        :func:`format_activation` with the cautions.
+
+    Notes
+    -----
+    ``temperature.json`` holds ``activation`` (one entry per rate constant,
+    see :meth:`Activation.to_dict`), ``two_stage`` (see
+    :meth:`TwoStage.to_dict`, or null), ``order_warnings``,
+    ``prediction_basis`` (see :func:`kinfit.prediction.basis_to_dict`; read
+    by ``kinfit simulate --fit``) and ``cautions``.
+    """
+    import json
+
+    from .plots import plot_arrhenius, plot_eyring
+    from .prediction import basis_to_dict
+    from .two_stage import order_differences
+
+    span = activations[0].temperature_range if activations else None
+    data = {
+        "activation": [a.to_dict() for a in activations],
+        "two_stage": None if two_stage is None else two_stage.to_dict(),
+        "order_warnings": [] if two_stage is None or result is None else
+        list(order_differences(two_stage, result)),
+        "prediction_basis": None if basis is None else basis_to_dict(basis),
+        "cautions": temperature_cautions(span),
+    }
+    files = {"temperature.json": json.dumps(_plain(data), indent=2, ensure_ascii=False) + "\n"}
+    for name, plot in (("arrhenius", plot_arrhenius), ("eyring", plot_eyring)):
+        fig = plot(activations, two_stage)
+        for fmt in ("png", "svg"):
+            files[f"{name}.{fmt}"] = figure_bytes(fig, fmt)
+    return files, format_activation(activations, two_stage, result)
+
+
+def _plain(value):
+    """JSON-ready copy: numpy numbers to float, non-finite numbers to null."""
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, (np.floating, float)):
+        return float(value) if math.isfinite(value) else None
+    if isinstance(value, np.integer):
+        return int(value)
+    return value
+
+
+def format_prediction(prediction, title=None):
+    """Text summary of a :class:`~kinfit.prediction.Prediction`, flags first."""
+    units = prediction.units
+    out = []
+    if prediction.extrapolated:
+        out.append("EXTRAPOLATED: this prediction lies outside the conditions the fit was "
+                   "measured in:")
+        out += [f"  - {flag}" for flag in prediction.flags]
+        out.append("")
+    if not prediction.range_known:
+        out.append("Not checked for extrapolation: no fitted range is known (predict from a "
+                   "fit with --fit to check it).")
+        out.append("")
+    head = title or "Prediction"
+    if prediction.temperature is not None:
+        head += f" at {_kelvin_celsius(prediction.temperature)}"
+    out.append(head)
+    for name, rate in prediction.rates:
+        line = f"  {name}({rate.temperature:.2f} K) = {format_value(rate.value, rate.stderr)}"
+        if rate.interval is not None:
+            line += f", {100 * prediction.level:g} % interval {_interval(rate.interval)}"
+        out.append(line)
+    t = prediction.times[-1]
+    out.append(f"  at t = {t:g} {units.time}:")
+    for i, s in enumerate(prediction.species):
+        line = f"    [{s}] = {prediction.conc[-1, i]:.4g} {units.concentration}"
+        if prediction.lower is not None:
+            line += (f"  ({100 * prediction.level:g} % band {prediction.lower[-1, i]:.4g} – "
+                     f"{prediction.upper[-1, i]:.4g})")
+        out.append(line)
+    if prediction.lower is not None:
+        out.append(f"  band from {prediction.draws} parameter draws ({prediction.uncertainty})"
+                   + (f"; {prediction.failed} could not be integrated" if prediction.failed
+                      else ""))
+    else:
+        out.append("  no uncertainty: predict from a fit (--fit) to get a band")
+    if prediction.temperature is not None:
+        out += ["", "Caution (temperature)"] + textwrap.wrap(
+            temperature_cautions(prediction.fitted_temperature), 88, initial_indent="  ", subsequent_indent="  ",
+            break_on_hyphens=False)
+    return "\n".join(out)
+
+
+def write_prediction(out_dir, prediction, title=None):
+    """Write ``simulation.csv``, ``simulation.png`` and ``prediction.json``.
+
+    ``simulation.csv`` has a time column, one column per species and, with a
+    band, ``<species>_lower`` and ``<species>_upper``. ``prediction.json``
+    holds :meth:`Prediction.to_dict` (with ``extrapolated`` and ``flags``)
+    and the cautions.
+
+    Returns
+    -------
+    list of pathlib.Path
+    """
+    import json
+
+    from .plots import plot_prediction
+
+    out_dir = _prepare(out_dir)
+    png = figure_bytes(plot_prediction(prediction, title))
+    header = ["time", *prediction.species]
+    columns = [prediction.times] + [prediction.conc[:, i] for i in range(len(prediction.species))]
+    if prediction.lower is not None:
+        for i, s in enumerate(prediction.species):
+            header += [f"{s}_lower", f"{s}_upper"]
+            columns += [prediction.lower[:, i], prediction.upper[:, i]]
+    table = np.column_stack(columns)
+    lines = [",".join(header)] + [",".join(f"{v:.10g}" for v in row) for row in table]
+    data = prediction.to_dict()
+    data["cautions"] = temperature_cautions(prediction.fitted_temperature) \
+        if prediction.temperature is not None else CAUTIONS
+    text = json.dumps(_plain(data), indent=2, ensure_ascii=False) + "\n"
+    out_dir.mkdir(parents=True, exist_ok=True)
+    write_text(out_dir / "simulation.csv", "\n".join(lines) + "\n")
+    write_bytes(out_dir / "simulation.png", png)
+    write_text(out_dir / "prediction.json", text)
+    return [out_dir / "simulation.csv", out_dir / "simulation.png",
+            out_dir / "prediction.json"]
+
+
+# ----------------------------------------------------------------- posterior
+
+def _interval_text(pair, digits=4):
     if pair is None:
         return "—"
     ends = ["open" if v is None else f"{v:.{digits}g}" for v in pair]
@@ -244,8 +530,8 @@ def format_posterior(post, cautions=True):
         name = row["name"]
         s = post.summary[name]
         rows.append((name, post.units.get(name) or "", format_value(s["median"], s["sd"]),
-                     _interval(row["covariance"]), _interval(row["profile"]),
-                     _interval(row["posterior"]), ", ".join(row["flags"])))
+                     _interval_text(row["covariance"]), _interval_text(row["profile"]),
+                     _interval_text(row["posterior"]), ", ".join(row["flags"])))
     out += _table(rows, ("name", "unit", "posterior", "covariance 95 %", "profile 95 %",
                          "posterior 95 %", "flags"))
     flagged = [r for r in rows if r[-1]]

@@ -20,20 +20,23 @@ better than 1e-6 relative (tested).
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
 
+from .compiled import AVAILABLE, OK, integrate_batch, integrate_stiff
 from .errors import KinfitError
 from .mechanism import jacobian, rhs
 
-__all__ = ["Trajectory", "Integration", "integrate", "simulate", "simulate_runs",
-           "initial_array", "RTOL", "ATOL", "MAX_RHS_CALLS"]
+__all__ = ["Trajectory", "Integration", "FlatSolution", "integrate", "integrate_flat",
+           "simulate", "simulate_runs", "initial_array", "RTOL", "ATOL", "MAX_RHS_CALLS"]
 
-RTOL = 1e-9
+RTOL = 1e-8
 ATOL = 1e-12
 MAX_RHS_CALLS = 50_000
-_METHODS = ("LSODA", "BDF", "Radau", "RK45", "DOP853")
+_METHODS = ("auto", "compiled", "LSODA", "BDF", "Radau", "RK45", "DOP853")
+_SOLVE_IVP = ("LSODA", "BDF", "Radau", "RK45", "DOP853")
 
 
 @dataclass(frozen=True)
@@ -56,7 +59,7 @@ class Trajectory:
     species: tuple
     success: bool = True
     message: str = ""
-    method: str = "LSODA"
+    method: str = "auto"
 
     def __getitem__(self, species):
         """Concentration of one species over time [n_times]."""
@@ -183,8 +186,9 @@ def integrate(stoichiometry, present, conc0, k, orders, t_eval, *, method="LSODA
         not spoil the others; the failed ones come back as NaN with
         ``ok = False``.
     """
-    if method not in _METHODS:
-        raise KinfitError(f"unknown integrator {method!r}; choose one of {', '.join(_METHODS)}")
+    if method not in _SOLVE_IVP:
+        raise KinfitError(f"unknown integrator {method!r}; choose one of "
+                          f"{', '.join(_SOLVE_IVP)}")
     conc0 = np.asarray(conc0, dtype=float)
     t_eval = np.asarray(t_eval, dtype=float)
     n_sys, n_species = conc0.shape
@@ -217,7 +221,173 @@ def initial_array(mechanism, initial):
     return conc0
 
 
-def simulate_runs(mechanism, rates_by_run, conc0, times, *, method="LSODA", rtol=RTOL,
+@dataclass(frozen=True)
+class FlatSolution:
+    """Result of :func:`integrate_flat`.
+
+    Attributes
+    ----------
+    conc : ndarray [n_out_total, n_species]
+        Concentrations at every requested output, systems concatenated.
+    sens : ndarray [n_out_total, n_species, n_sens] or None
+        Forward sensitivities ∂[X]/∂q with respect to the kernel parameters.
+    ok : ndarray [n_sys] of bool
+    n_rhs : int
+        Right-hand-side evaluations.
+    n_compiled, n_stiff, n_implicit : int
+        Systems finished by the compiled explicit integrator, by the compiled
+        Rosenbrock method (stiff), and by solve_ivp.
+    message : str
+    """
+
+    conc: np.ndarray
+    sens: np.ndarray | None
+    ok: np.ndarray
+    n_rhs: int
+    n_compiled: int
+    n_stiff: int
+    n_implicit: int
+    message: str
+
+
+def _scales(conc0):
+    scale = np.maximum(conc0.max(axis=1), 1e-300)
+    return scale
+
+
+def _implicit_one(stoich, present, c0, k, orders, t_out, method, rtol, atol, max_rhs, sens):
+    """One system with solve_ivp; sensitivities by central differences in one stacked call."""
+    grid, inverse = np.unique(np.clip(t_out, 0.0, None), return_inverse=True)
+    n_sens = 0 if sens is None else len(sens[0])
+    if n_sens == 0:
+        res = integrate(stoich, present, c0[None], k[None], orders[None], grid, method=method,
+                        rtol=rtol, atol=atol, max_rhs=max_rhs)
+        if not res.ok[0]:
+            return None, None, res.n_rhs, res.message
+        return res.conc[0][inverse], None, res.n_rhs, res.message
+    kind, jj, ss = sens
+    scale = max(c0.max(), 1e-300)
+    c0s = np.repeat(c0[None], 2 * n_sens + 1, axis=0)
+    ks = np.repeat(k[None], 2 * n_sens + 1, axis=0)
+    es = np.repeat(orders[None], 2 * n_sens + 1, axis=0)
+    steps = np.empty(n_sens)
+    for p in range(n_sens):
+        for sign, row in ((1.0, 1 + p), (-1.0, 1 + n_sens + p)):
+            if kind[p] == 0:
+                h = 1e-5
+                ks[row, jj[p]] *= math.exp(sign * h)
+            elif kind[p] == 1:
+                h = 1e-5
+                es[row, jj[p], ss[p]] += sign * h
+            else:
+                h = 1e-5 * scale
+                c0s[row, ss[p]] += sign * h
+        steps[p] = h
+    res = integrate(stoich, present, c0s, ks, es, grid, method=method, rtol=rtol, atol=atol,
+                    max_rhs=max_rhs)
+    if not res.ok.all():
+        return None, None, res.n_rhs, res.message
+    conc = res.conc
+    sens_out = (conc[1:1 + n_sens] - conc[1 + n_sens:]) / (2 * steps[:, None, None])
+    return conc[0][inverse], sens_out.transpose(1, 2, 0)[inverse], res.n_rhs, res.message
+
+
+def integrate_flat(stoichiometry, present, conc0, k, orders, t_out, out_start, *,
+                   method="auto", rtol=RTOL, atol=ATOL, max_rhs=MAX_RHS_CALLS, sens=None,
+                   fallback=True):
+    """Integrate many systems, each with its own output times, in one call.
+
+    Parameters
+    ----------
+    stoichiometry : ndarray [n_species, n_directions]
+    present : ndarray [n_directions, n_species] of bool
+    conc0 : ndarray [n_sys, n_species]
+    k : ndarray [n_sys, n_directions]
+    orders : ndarray [n_sys, n_directions, n_species]
+    t_out : ndarray [n_out_total]
+        Output times of all systems concatenated (non-decreasing within each
+        system; times at or below zero give the starting concentrations).
+    out_start : ndarray [n_sys + 1] of int
+        System i's outputs are ``t_out[out_start[i]:out_start[i + 1]]``.
+    method : {"auto", "compiled", "LSODA", "BDF", "Radau", "RK45", "DOP853"}
+        "auto" runs the compiled Dormand–Prince 5(4) integrator and hands the
+        systems it finds stiff to the compiled Rosenbrock 4(3) method (and
+        those to LSODA if it too gives up); "compiled" does not hand them
+        over (they fail); the others use :func:`scipy.integrate.solve_ivp`
+        only.
+    rtol, atol : float
+        As in :func:`integrate`.
+    sens : tuple (kind, direction, species) of int arrays, optional
+        Kernel parameters for forward sensitivities (see
+        :mod:`kinfit.compiled`).
+    fallback : bool
+        With "auto", whether stiff systems are handed to LSODA (a screen of
+        many rough candidates may prefer to drop them).
+
+    Returns
+    -------
+    FlatSolution
+    """
+    if method not in _METHODS:
+        raise KinfitError(f"unknown integrator {method!r}; choose one of {', '.join(_METHODS)}")
+    conc0 = np.asarray(conc0, dtype=float)
+    n_sys, n_species = conc0.shape
+    n_sens = 0 if sens is None else len(sens[0])
+    scale = _scales(conc0)
+    compiled_ok = method in ("auto", "compiled") and AVAILABLE
+    if compiled_ok:
+        conc, sens_out, status, n_rhs = integrate_batch(
+            stoichiometry, present, conc0, k, orders, t_out, out_start, rtol=rtol,
+            atol=atol * scale, eps=1e-9 * scale, sens=sens,
+            max_steps=max(1000, max_rhs // 6))
+        todo = np.flatnonzero(status != OK) if (method == "auto" and fallback) else []
+        ok = status == OK
+        implicit_method = "LSODA"
+    else:
+        conc = np.full((t_out.size, n_species), np.nan)
+        sens_out = np.full((t_out.size, n_species, n_sens), np.nan)
+        ok = np.zeros(n_sys, dtype=bool)
+        n_rhs = 0
+        todo = range(n_sys)
+        implicit_method = "LSODA" if method in ("auto", "compiled") else method
+    message = "ok"
+    n_implicit = n_stiff = 0
+    for i in todo:
+        lo, hi = out_start[i], out_start[i + 1]
+        c = None
+        if compiled_ok:      # the compiled Rosenbrock method first, LSODA as a last resort
+            c, s_i, status, calls = integrate_stiff(
+                stoichiometry, present, conc0[i], k[i], orders[i], t_out[lo:hi], rtol=rtol,
+                atol=atol * scale[i], eps=1e-9 * scale[i], sens=sens,
+                max_steps=max(1000, max_rhs // 3))
+            n_rhs += calls
+            if status != OK:
+                c = None
+            else:
+                n_stiff += 1
+        if c is None:
+            c, s_i, calls, msg = _implicit_one(stoichiometry, present, conc0[i], k[i],
+                                               orders[i], t_out[lo:hi], implicit_method, rtol,
+                                               atol, max_rhs, sens)
+            n_rhs += calls
+            n_implicit += 1
+            if c is None:
+                ok[i] = False
+                message = msg
+                conc[lo:hi] = np.nan
+                continue
+        ok[i] = True
+        conc[lo:hi] = c
+        if s_i is not None:
+            sens_out[lo:hi] = s_i
+    n_compiled = int(ok.sum()) - n_implicit - n_stiff if compiled_ok else 0
+    if not ok.all() and message == "ok":
+        message = "the explicit integrator could not finish some systems (stiff)"
+    return FlatSolution(conc, sens_out if n_sens else None, ok, n_rhs, max(n_compiled, 0),
+                        n_stiff, n_implicit, message)
+
+
+def simulate_runs(mechanism, rates_by_run, conc0, times, *, method="auto", rtol=RTOL,
                   atol=ATOL, max_rhs=MAX_RHS_CALLS):
     """Concentrations of every run under every parameter set.
 
@@ -234,36 +404,41 @@ def simulate_runs(mechanism, rates_by_run, conc0, times, *, method="LSODA", rtol
     times : sequence of ndarray, one per run, each [n_sets, n_times_run]
         Model times at which each run is wanted (data times plus any time
         offset); times below zero give the starting concentrations.
+    method : str
+        See :func:`integrate_flat`.
 
     Returns
     -------
     conc : list of ndarray [n_sets, n_times_run, n_species]
     ok : ndarray [n_sets] of bool
         False where any run of that set failed to integrate.
-    info : Integration
-        Messages and work counts (``conc`` field not filled).
+    info : FlatSolution
+        Messages and work counts (``conc`` holds all outputs, flat).
     """
-    n_sets = conc0.shape[0]
-    # One integration per run, stacking the parameter sets: sets of one run
-    # (finite-difference neighbours, sampler walkers) change on similar time
-    # scales, whereas different runs may not, and a stacked integrator must
-    # resolve every system's fastest moments.
-    conc, ok, n_rhs, message = [], np.ones(n_sets, dtype=bool), 0, ""
-    for r, (t, (k, orders)) in enumerate(zip(times, rates_by_run)):
-        t = np.clip(np.broadcast_to(t, (n_sets, np.shape(t)[-1])), 0.0, None)
-        grid = np.unique(t)
-        result = integrate(mechanism.stoichiometry, mechanism.present, conc0[:, r], k, orders,
-                           grid, method=method, rtol=rtol, atol=atol, max_rhs=max_rhs)
-        idx = np.searchsorted(grid, t)                            # [n_sets, n_times_run]
-        conc.append(np.take_along_axis(result.conc, idx[:, :, None], axis=1))
-        ok &= result.ok
-        n_rhs += result.n_rhs
-        if not result.ok.all():
-            message = f"run {r + 1}: {result.message}"
-    return conc, ok, Integration(None, ok, message or "ok", n_rhs, method)
+    n_sets, n_runs = conc0.shape[0], conc0.shape[1]
+    times = [np.broadcast_to(np.asarray(t, float), (n_sets, np.shape(t)[-1])) for t in times]
+    sizes = [t.shape[1] for t in times]
+    # systems ordered set-major: system s * n_runs + r is run r under set s
+    t_out = np.concatenate([times[r][s] for s in range(n_sets) for r in range(n_runs)])
+    out_start = np.concatenate([[0], np.cumsum([sizes[r] for s in range(n_sets)
+                                                for r in range(n_runs)])])
+    k = np.stack([rates_by_run[r][0] for r in range(n_runs)], axis=1).reshape(
+        n_sets * n_runs, -1)
+    orders = np.stack([rates_by_run[r][1] for r in range(n_runs)], axis=1).reshape(
+        n_sets * n_runs, *rates_by_run[0][1].shape[1:])
+    sol = integrate_flat(mechanism.stoichiometry, mechanism.present,
+                         conc0.reshape(n_sets * n_runs, -1), k, orders, t_out, out_start,
+                         method=method, rtol=rtol, atol=atol, max_rhs=max_rhs)
+    conc = []
+    for r in range(n_runs):
+        rows = [sol.conc[out_start[s * n_runs + r]:out_start[s * n_runs + r + 1]]
+                for s in range(n_sets)]
+        conc.append(np.stack(rows))
+    ok = sol.ok.reshape(n_sets, n_runs).all(axis=1)
+    return conc, ok, sol
 
 
-def simulate(mechanism, initial, values=None, times=None, *, method="LSODA", rtol=RTOL,
+def simulate(mechanism, initial, values=None, times=None, *, method="auto", rtol=RTOL,
              atol=ATOL):
     """Integrate the rate equations for one set of starting concentrations.
 
@@ -279,7 +454,8 @@ def simulate(mechanism, initial, values=None, times=None, *, method="LSODA", rto
         Times to report; by default the run's data times (for a Run) or 201
         points over 0..100 time units.
     method : str
-        Integrator (see :func:`integrate`).
+        Integrator (see :func:`integrate_flat`); the default "auto" uses the
+        compiled explicit integrator and LSODA where the equations are stiff.
 
     Returns
     -------
@@ -305,8 +481,10 @@ def simulate(mechanism, initial, values=None, times=None, *, method="LSODA", rto
     merged = mechanism.values(values)
     row = np.array([merged[n] for n in mechanism.parameter_names])
     conc0 = initial_array(mechanism, start)
-    result = integrate(mechanism.stoichiometry, mechanism.present, conc0[None],
-                       *mechanism.rate_arrays(row),
-                       times, method=method, rtol=rtol, atol=atol)
-    return Trajectory(times, result.conc[0], mechanism.species, bool(result.ok[0]),
-                      result.message, method)
+    k, orders = mechanism.rate_arrays(row)
+    sol = integrate_flat(mechanism.stoichiometry, mechanism.present, conc0[None], k, orders,
+                         times, np.array([0, times.size]), method=method, rtol=rtol, atol=atol)
+    used = method if method not in ("auto", "compiled") else (
+        "LSODA" if sol.n_implicit else "compiled Rosenbrock 4(3)" if sol.n_stiff
+        else "compiled Dormand-Prince 5(4)")
+    return Trajectory(times, sol.conc, mechanism.species, bool(sol.ok[0]), sol.message, used)

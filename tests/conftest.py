@@ -68,6 +68,120 @@ def small(files):
     return {"model": model, "experiment": experiment, "folder": files.folder}
 
 
+# ------------------------------------------------------- temperature studies
+#
+# Seeded synthetic runs at four temperatures, made from closed-form integrated
+# rate laws (physical-chemistry textbooks) and rate constants computed here
+# from the Arrhenius and Eyring equations with CODATA constants
+# (scipy.constants), never from kinfit's own integrator or temperature code.
+
+STUDY_TEMPERATURES = (288.15, 298.15, 308.15, 318.15)      # K
+
+
+def _arrhenius_study(folder, seed=20261207):
+    """A -> P, free order m (shared), k_ref and Ea known; units M and s.
+
+    Truth: m = 1, Ea = 60 kJ/mol, k_ref = 0.02 s^-1 at the centre of the
+    runs' 1/T range. Data: [A] = [A]0 exp(-k t) (first order, closed form).
+    """
+    import numpy as np
+    from scipy.constants import R
+
+    truth = {"k": 0.02, "m": 1.0, "Ea": 60.0}
+    inverse = 1.0 / np.array(STUDY_TEMPERATURES)
+    reference = 2.0 / (inverse.min() + inverse.max())
+    rng = np.random.default_rng(seed)
+    rows, runs = ["run,time,species,value"], []
+    for T in STUDY_TEMPERATURES:
+        k = truth["k"] * np.exp(-truth["Ea"] * 1e3 / R * (1.0 / T - 1.0 / reference))
+        for j, a0 in enumerate((1.0, 0.5)):
+            name = f"T{T:.0f}_{j}"
+            t = np.linspace(0.0, 3.0 / k, 20)
+            y = a0 * np.exp(-k * t) + rng.normal(0.0, 0.005, t.size)
+            rows += [f"{name},{ti:.6g},A,{yi:.6f}" for ti, yi in zip(t, y)]
+            runs.append(f'[[runs]]\nname = "{name}"\ntemperature = {T}\n'
+                        f'initial = {{ A = {a0} }}\n')
+    (folder / "traces.csv").write_text("\n".join(rows) + "\n")
+    (folder / "experiment.toml").write_text(
+        '[units]\ntime = "s"\nconcentration = "M"\n[data]\nfile = "traces.csv"\n'
+        '[noise]\ndefault = { absolute = 0.005 }\n' + "\n".join(runs))
+    (folder / "model.toml").write_text(
+        '# A -> P, free order, Arrhenius\n[[steps]]\nreaction = "A -> P"\n'
+        'rate = "k * [A]^m"\n[parameters]\nk = { value = 0.01, min = 0 }\n'
+        'm = { value = 1.2, min = 0, max = 3 }\nEa = { value = 45 }\n'
+        '[temperature]\narrhenius = { k = "Ea" }\n')
+    return truth, reference
+
+
+def _eyring_study(folder):
+    """A + B -> P with [A]0 = [B]0, rate k[A][B], Eyring; units mM and min.
+
+    Truth: ΔH‡ = 50 kJ/mol, ΔS‡ = -100 J/(mol K), κ = 1, standard state
+    1 mol/L: k = (k_B T/h) exp(ΔS‡/R) exp(-ΔH‡/RT) in M^-1 s^-1 (Eyring
+    equation), converted to mM^-1 min^-1 (× 60 / 1000). Data:
+    [A] = [A]0 / (1 + k [A]0 t) (second order, equal starting
+    concentrations, closed form).
+    """
+    import numpy as np
+    from scipy.constants import R, h, k as k_B
+
+    truth = {"dH": 50.0, "dS": -100.0}
+    rng = np.random.default_rng(20261208)
+    rows, runs = ["run,time,species,value"], []
+    for T in STUDY_TEMPERATURES:
+        k_si = k_B * T / h * np.exp(truth["dS"] / R) * np.exp(-truth["dH"] * 1e3 / (R * T))
+        k = k_si * 60.0 / 1000.0
+        for j, a0 in enumerate((10.0, 20.0)):
+            name = f"T{T:.0f}_{j}"
+            t = np.linspace(0.0, 4.0 / (k * a0), 20)
+            y = a0 / (1.0 + k * a0 * t) + rng.normal(0.0, 0.05, t.size)
+            rows += [f"{name},{ti:.6g},A,{yi:.5f}" for ti, yi in zip(t, y)]
+            runs.append(f'[[runs]]\nname = "{name}"\ntemperature = {T}\n'
+                        f'initial = {{ A = {a0}, B = {a0} }}\n')
+    (folder / "traces.csv").write_text("\n".join(rows) + "\n")
+    (folder / "experiment.toml").write_text(
+        '[units]\ntime = "min"\nconcentration = "mM"\n[data]\nfile = "traces.csv"\n'
+        '[noise]\ndefault = { absolute = 0.05 }\n' + "\n".join(runs))
+    (folder / "model.toml").write_text(
+        '# A + B -> P, second order, Eyring\n[[steps]]\nreaction = "A + B -> P"\n'
+        'rate = "k * [A] * [B]"\n[parameters]\nk = { value = 0.001, min = 0 }\n'
+        'dH = { value = 70 }\n[temperature]\neyring = { k = "dH" }\n')
+    return truth
+
+
+@pytest.fixture(scope="session")
+def arrhenius_study(tmp_path_factory):
+    """The Arrhenius study fitted globally (and its two-stage analysis)."""
+    from kinfit.data import load_experiment
+    from kinfit.fit import fit
+    from kinfit.mechanism import load_mechanism
+    from kinfit.two_stage import two_stage
+
+    folder = tmp_path_factory.mktemp("arrhenius")
+    truth, reference = _arrhenius_study(folder)
+    exp = load_experiment(folder / "experiment.toml")
+    mech = load_mechanism(folder / "model.toml")
+    result = fit(exp, mech, starts=1)
+    return {"folder": folder, "experiment": exp, "mechanism": mech, "result": result,
+            "truth": truth, "reference": reference,
+            "two_stage": two_stage(exp, mech, result, orders="free", starts=1)}
+
+
+@pytest.fixture(scope="session")
+def eyring_study(tmp_path_factory):
+    """The Eyring study fitted globally."""
+    from kinfit.data import load_experiment
+    from kinfit.fit import fit
+    from kinfit.mechanism import load_mechanism
+
+    folder = tmp_path_factory.mktemp("eyring")
+    truth = _eyring_study(folder)
+    exp = load_experiment(folder / "experiment.toml")
+    mech = load_mechanism(folder / "model.toml")
+    return {"folder": folder, "experiment": exp, "mechanism": mech, "truth": truth,
+            "result": fit(exp, mech, starts=1)}
+
+
 # A straight-line problem for the uncertainty checks: zero-order loss of A,
 # [A] = A0 - k t, with A0 fitted, so the posterior and profile of (k, A0) can be
 # compared with ordinary least squares (statsmodels). The rate constant gets a

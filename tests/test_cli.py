@@ -150,6 +150,139 @@ def test_console_script_exit_codes(tmp_path):
     assert len(proc.stderr.strip().splitlines()) == 1
 
 
+# ------------------------------------------------------------ temperature
+
+TEMPERATURE_DEMO = DEMO / "temperature"
+
+
+@pytest.fixture(scope="module")
+def temperature_fit(tmp_path_factory):
+    out = tmp_path_factory.mktemp("tfit") / "fit"
+    result = runner.invoke(app, ["fit", str(TEMPERATURE_DEMO / "experiment.toml"), "--model",
+                                 str(TEMPERATURE_DEMO / "ester_hydrolysis.toml"), "--out",
+                                 str(out), "--starts", "1"])
+    return result, out
+
+
+def test_fit_command_on_the_temperature_example(temperature_fit):
+    result, out = temperature_fit
+    assert result.exit_code == 0, result.output
+    text = " ".join(result.output.split())
+    for needed in ("Temperature dependence", "Ea (fitted)", "ΔH‡", "ΔS‡", "ΔG‡(298.15 K)",
+                   "Two-stage analysis", "Caution (temperature)", "calorimetry",
+                   "Extrapolation beyond the measured range is unsafe"):
+        assert needed in text, needed
+    for name in ("temperature.json", "arrhenius.png", "eyring.png", "result.json"):
+        assert (out / name).exists(), name
+    data = json.loads((out / "temperature.json").read_text())
+    ea = data["activation"][0]["estimates"]["Ea"]
+    # the example's truth (demo/temperature/truth.toml): Ea = 55 kJ/mol
+    assert abs(ea["value"] - 55.0) < 3 * ea["stderr"]
+    assert data["activation"][0]["temperature_range_K"] == [288.15, 318.15]
+    assert "Caution (temperature)" in (out / "summary.txt").read_text()
+
+
+def test_simulate_from_the_fit_flags_extrapolation(tmp_path, temperature_fit):
+    _, fitted = temperature_fit
+    out = tmp_path / "sim"
+    result = runner.invoke(app, ["simulate", str(TEMPERATURE_DEMO / "ester_hydrolysis.toml"),
+                                 "-i", "ester=20", "-i", "hydroxide=90", "-T", "60",
+                                 "--temperature-unit", "degC", "--fit",
+                                 str(fitted / "temperature.json"), "--until", "30",
+                                 "--draws", "30", "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert "EXTRAPOLATED" in result.output and "60.0 °C" in result.output
+    assert "starting [hydroxide] = 90 mM is outside the fitted range 30–60 mM" in result.output
+    data = json.loads((out / "prediction.json").read_text())
+    assert data["extrapolated"] is True and len(data["flags"]) == 2
+    assert data["rate_constants"]["k"]["stderr"] > 0 and "calorimetry" in data["cautions"]
+    inside = runner.invoke(app, ["simulate", str(TEMPERATURE_DEMO / "ester_hydrolysis.toml"),
+                                 "-i", "ester=20", "-i", "hydroxide=40", "-T", "303.15",
+                                 "--fit", str(fitted / "temperature.json"), "--draws", "30",
+                                 "--out", str(tmp_path / "in")])
+    assert inside.exit_code == 0, inside.output
+    assert "EXTRAPOLATED" not in inside.output
+    assert json.loads((tmp_path / "in" / "prediction.json").read_text())["flags"] == []
+
+
+@pytest.mark.parametrize("args, message", [
+    (["-i", "ester=20"], "depend on temperature; give --temperature"),
+    (["-i", "ester=20", "-T", "300"], "none is known; add reference"),
+    (["-i", "ester=20", "-T", "-300"], "at or below absolute zero"),
+    (["-i", "ester=20", "-T", "30", "--temperature-unit", "m"], "not a temperature unit"),
+])
+def test_simulate_temperature_errors(tmp_path, args, message):
+    result = runner.invoke(app, ["simulate", str(TEMPERATURE_DEMO / "ester_hydrolysis.toml"),
+                                 *args, "--out", str(tmp_path / "x")])
+    assert result.exit_code == 2 and message in result.output, result.output
+    assert not (tmp_path / "x").exists()
+
+
+def test_temperature_on_a_model_without_temperature_dependence(tmp_path):
+    result = runner.invoke(app, ["simulate", str(MODELS / "first_order.toml"), "-i", "A=1",
+                                 "-T", "300", "--out", str(tmp_path / "x")])
+    assert result.exit_code == 2 and "do not depend on temperature" in result.output
+
+
+def test_fit_with_a_run_without_temperature(tmp_path):
+    write(tmp_path, "model.toml", FIRST_ORDER_MODEL + 'Ea = 50\n[temperature]\n'
+                                                      'arrhenius = { k = "Ea" }\n')
+    write(tmp_path, "experiment.toml", SMALL_EXPERIMENT)
+    write(tmp_path, "traces.csv", SMALL_TRACES)
+    result = runner.invoke(app, ["fit", str(tmp_path / "experiment.toml"), "--model",
+                                 str(tmp_path / "model.toml"), "--out", str(tmp_path / "o")])
+    assert result.exit_code == 2
+    assert "run 'r1': the model's rate constants depend on temperature" in result.output
+    assert not (tmp_path / "o").exists()
+
+
+def test_two_stage_that_cannot_run_is_skipped_with_a_warning(tmp_path):
+    # One run at each of two temperatures, 3 points each, with a fitted starting
+    # concentration: the global fit has 5 parameters for 6 points, but each stage-one fit
+    # would have 3 (k, m, A0) for 3 points, so the two-stage analysis cannot run.
+    write(tmp_path, "model.toml", """
+        # A -> P, free order, Arrhenius
+        [[steps]]
+        reaction = "A -> P"
+        rate = "k * [A]^m"
+        [parameters]
+        k = { value = 0.05, min = 0 }
+        m = { value = 1, min = 0, max = 3 }
+        Ea = 50
+        [temperature]
+        arrhenius = { k = "Ea" }
+    """)
+    write(tmp_path, "experiment.toml", """
+        [data]
+        file = "traces.csv"
+        [[runs]]
+        name = "cold"
+        temperature = 300
+        initial = { A = { value = 1.0, vary = true, min = 0 } }
+        [[runs]]
+        name = "warm"
+        temperature = 320
+        initial = { A = { value = 1.0, vary = true, min = 0 } }
+    """)
+    write(tmp_path, "traces.csv", """
+        run,time,species,value
+        cold,0,A,1.0
+        cold,10,A,0.61
+        cold,20,A,0.37
+        warm,0,A,1.0
+        warm,10,A,0.22
+        warm,20,A,0.05
+    """)
+    out = tmp_path / "o"
+    result = runner.invoke(app, ["fit", str(tmp_path / "experiment.toml"), "--model",
+                                 str(tmp_path / "model.toml"), "--out", str(out),
+                                 "--starts", "1"])
+    assert result.exit_code == 0, result.output
+    assert "warning: the two-stage analysis was skipped" in result.output
+    assert "3 fitted parameters but only 3 data points" in result.output
+    assert json.loads((out / "temperature.json").read_text())["two_stage"] is None
+
+
 # ------------------------------------------------------------------- sample
 
 def _sample_args(paths, out, *extra):

@@ -111,3 +111,42 @@ def test_time_offset_shifts_the_model(files):
     # [Atkins] first order: model at data time t is A0 exp(-k (t + t0))
     model = np.exp(-0.05 * (np.array([0, 10, 20.0]) + 2.0))
     np.testing.assert_allclose(res, model - [0.9, 0.5, 0.3], rtol=1e-7, atol=1e-9)
+
+
+def test_each_run_gets_the_rate_constant_of_its_temperature(arrhenius_study):
+    # Arrhenius equation computed here with scipy.constants.R, against what the problem
+    # hands the integrator for each run.
+    from scipy.constants import R
+
+    exp, mech = arrhenius_study["experiment"], arrhenius_study["mechanism"]
+    problem = build_problem(mech, exp)
+    values = problem.values_array({"k": 0.03, "Ea": 70.0})
+    t_ref = problem.temperature.reference
+    for run, (k, orders) in zip(exp.runs, problem.rate_arrays(values)):
+        expected = 0.03 * math.exp(-70e3 / R * (1 / run.temperature - 1 / t_ref))
+        assert k[0, 0] == pytest.approx(expected, rel=1e-13)
+        assert orders[0, 0, 0] == values[0, problem.names.index("m")]
+    # a model without a temperature law keeps one rate constant for every run
+    plain = build_problem(mechanism_from_text(
+        '[[steps]]\nreaction = "A -> P"\nrate = "k * [A]"\n[parameters]\nk = 0.1\n'), exp)
+    arrays = plain.rate_arrays(plain.values_array({}))
+    assert all(a[0] is arrays[0][0] for a in arrays)
+
+
+@pytest.mark.parametrize("study", ["arrhenius_study", "eyring_study"])
+def test_exact_jacobian_of_a_temperature_problem(request, study):
+    # The sensitivities with respect to k_ref and the energy, against central finite
+    # differences of the residuals (common practice), at a point away from the optimum.
+    data = request.getfixturevalue(study)
+    problem = build_problem(data["mechanism"], data["experiment"])
+    values = problem.values_array(data["result"].values)[0] * 1.02
+    res, jac, ok, _ = problem.residuals_jacobian(values)
+    assert ok
+    for p, name in enumerate(problem.names):
+        h = 1e-6 * abs(values[p])
+        up, down = values.copy(), values.copy()
+        up[p] += h
+        down[p] -= h
+        fd = (problem.residuals(up)[0] - problem.residuals(down)[0]) / (2 * h)
+        scale = np.abs(fd).max()
+        assert np.abs(jac[:, p] - fd).max() <= 1e-4 * scale, name

@@ -54,6 +54,54 @@ def test_write_fit(tmp_path, result):
     assert not [p for p in (tmp_path / "out").iterdir() if ".part" in p.name]
 
 
+# ------------------------------------------------------------ temperature
+
+def test_temperature_summary_and_files(tmp_path, arrhenius_study):
+    from kinfit.activation import activation_parameters
+    from kinfit.prediction import basis_from_fit
+    from kinfit.report import format_activation, temperature_outputs
+
+    result = arrhenius_study["result"]
+    acts = activation_parameters(result)
+    text = format_activation(acts, arrhenius_study["two_stage"], result)
+    for needed in ("Ea (fitted)", "ΔH‡", "ΔS‡", "ΔG‡(298.15 K)", "T_ref = 302.41 K (29.3 °C), where k = k_ref",
+                   "Two-stage analysis", "global fit 95 %", "Extrapolation beyond the measured "
+                   "range is unsafe", "calorimetry", "process-safety review", "local codes",
+                   "licensed professional practice", "thermal runaway"):
+        assert needed in " ".join(text.split()), needed
+    files, summary = temperature_outputs(acts, arrhenius_study["two_stage"],
+                                         basis_from_fit(result), result)
+    assert set(files) == {"temperature.json", "arrhenius.png", "arrhenius.svg", "eyring.png",
+                          "eyring.svg"}
+    data = json.loads(files["temperature.json"])
+    assert set(data) == {"activation", "two_stage", "order_warnings", "prediction_basis",
+                         "cautions"}
+    ea = data["activation"][0]["estimates"]["Ea"]
+    assert ea["unit"] == "kJ/mol" and ea["stderr"] > 0 and ea["fitted"] is True
+    assert "calorimetry" in data["cautions"]
+    written = write_fit(tmp_path / "out", result, extra_files=files, extra_summary=summary)
+    assert {"temperature.json", "arrhenius.png", "eyring.svg"} <= {p.name for p in written}
+    assert "Caution (temperature)" in (tmp_path / "out" / "summary.txt").read_text()
+
+
+def test_write_prediction(tmp_path, arrhenius_study):
+    import numpy as np
+
+    from kinfit.prediction import basis_from_fit, predict
+    from kinfit.report import format_prediction, write_prediction
+
+    basis = basis_from_fit(arrhenius_study["result"])
+    pred = predict(basis, {"A": 0.8}, np.linspace(0, 100, 11), 333.15, draws=20)
+    text = format_prediction(pred, "decay")
+    assert text.startswith("EXTRAPOLATED") and "calorimetry" in text
+    written = write_prediction(tmp_path / "p", pred, "decay")
+    assert [p.name for p in written] == ["simulation.csv", "simulation.png", "prediction.json"]
+    header = (tmp_path / "p" / "simulation.csv").read_text().splitlines()[0]
+    assert header == "time,A,P,A_lower,A_upper,P_lower,P_upper"
+    data = json.loads((tmp_path / "p" / "prediction.json").read_text())
+    assert data["extrapolated"] is True and "calorimetry" in data["cautions"]
+
+
 def test_format_posterior(line_posterior):
     post, _ = line_posterior
     text = format_posterior(post)
