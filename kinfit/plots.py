@@ -326,10 +326,10 @@ def plot_corner(posterior, fig=None):
     corner.corner(samples, fig=fig, labels=labels, truths=truths, truth_color=PALETTE[1],
                   quantiles=[0.025, 0.5, 0.975], show_titles=True, title_fmt=".3g",
                   title_kwargs={"fontsize": 8}, label_kwargs={"fontsize": 9},
-                  color=PALETTE[0], range=ranges, plot_datapoints=False,
+                  color=PALETTE[0], range=ranges, plot_datapoints=False, max_n_ticks=3,
                   levels=(1 - np.exp(-0.5), 1 - np.exp(-2.0)))
-    fig.suptitle("posterior (orange: least-squares fit; dashed: 2.5, 50, 97.5 %)",
-                 fontsize=10)
+    fig.text(0.98, 0.98, "posterior\norange: least-squares fit\ndashed: 2.5, 50, 97.5 %",
+             ha="right", va="top", fontsize=9)
     return fig
 
 

@@ -130,8 +130,8 @@ def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--replicates", type=int, default=100)
     parser.add_argument("--jobs", type=int, default=1)
-    parser.add_argument("--walkers", type=int, default=8)
-    parser.add_argument("--steps", type=int, default=500)
+    parser.add_argument("--walkers", type=int, default=16)
+    parser.add_argument("--steps", type=int, default=1200)
     parser.add_argument("--starts", type=int, default=2)
     parser.add_argument("--first-seed", type=int, default=1000)
     parser.add_argument("--json", type=Path, help="Write every replicate's outcome here "
