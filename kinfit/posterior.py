@@ -722,9 +722,9 @@ def sample(experiment, mechanism, walkers=DEFAULT_WALKERS, steps=DEFAULT_STEPS, 
     noise : {"auto", "declared", "per-species", "shared"}
         See :mod:`kinfit.space`.
     moves : {"de", "stretch"}
-        emcee's differential-evolution move (``DEMove``, the default: its
-        autocorrelation time was about half the stretch move's on the demo and
-        on the straight-line checks), or emcee's stretch move.
+        emcee's differential-evolution move (``DEMove``, the default: on the
+        demo its autocorrelation time is about a third of the stretch move's),
+        or emcee's stretch move.
     burn : int, optional
         Steps to discard; by default 3 autocorrelation times.
     thin : int
