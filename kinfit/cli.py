@@ -178,6 +178,8 @@ def sample_command(
                                              "this many seconds (resume later)."),
     profile: bool = typer.Option(True, "--profile/--no-profile",
                                  help="Also compute profile-likelihood intervals."),
+    report: bool = typer.Option(True, "--report/--no-report",
+                                help="Also write the fit's outputs and report.html."),
 ):
     """Sample the posterior of the orders and rate constants with emcee.
 
@@ -224,6 +226,15 @@ def sample_command(
         finally:
             signal.signal(signal.SIGTERM, previous)
         written = write_posterior(out, post)
+        if report:
+            from .report import write_fit
+
+            exp_used = post.fit.experiment
+            written = write_fit(out, post.fit, provenance=_provenance(
+                exp_used, post.fit.mechanism, seed,
+                {"walkers": walkers, "steps": steps, "noise": noise, "moves": moves,
+                 "starts": starts})) + written
+            written.append(_report(out))
         typer.echo(format_posterior(post))
         typer.echo(f"\nWrote {', '.join(p.name for p in written)} in {out}")
 
