@@ -131,25 +131,35 @@ def _factors(c, E, present, eps, deriv, pw, slope, dlog):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _rhs(z, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, out, row,
-         pw, slope, dlog, r, dr, J):
-    """Right-hand side of states (and sensitivities) for one system, into out[row]."""
-    S = n_species
+def _rhs(z, n_state, n_sens, basis, dirmap, c0, k, E, present, eps, kind, jj, ss, out, row, c,
+         pw, slope, dlog, r, dr, G, J):
+    """Right-hand side of the extents (and their sensitivities) for one system, into out[row].
+
+    The concentrations are c = c0 + basis z; the extents change as
+    dz/dt = dirmap r(c). With basis = I and dirmap = S this is the plain
+    system in the concentrations' changes.
+    """
+    S = c0.size
     D = E.shape[0]
-    _factors(z, E, present, eps, n_sens > 0, pw, slope, dlog)
+    for s in range(S):
+        acc = c0[s]
+        for i in range(n_state):
+            acc += basis[s, i] * z[i]
+        c[s] = acc
+    _factors(c, E, present, eps, n_sens > 0, pw, slope, dlog)
     for j in range(D):
         prod = k[j]
         for s in range(S):
             prod *= pw[j, s]
         r[j] = prod
-    for s in range(S):
+    for i in range(n_state):
         acc = 0.0
         for j in range(D):
-            acc += stoich[s, j] * r[j]
-        out[row, s] = acc
+            acc += dirmap[i, j] * r[j]
+        out[row, i] = acc
     if n_sens == 0:
         return
-    # dr[j, t] = k_j slope_jt Π_{s != t} pw_js
+    # dr[j, t] = k_j slope_jt Π_{s != t} pw_js = ∂r_j/∂c_t
     for j in range(D):
         for t in range(S):
             prod = k[j] * slope[j, t]
@@ -158,20 +168,27 @@ def _rhs(z, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, out, ro
                     if s != t:
                         prod *= pw[j, s]
             dr[j, t] = prod
-    for a in range(S):
-        for b in range(S):
+    # G = dr · basis [D, n_state]; J = dirmap · G [n_state, n_state]
+    for j in range(D):
+        for b in range(n_state):
+            acc = 0.0
+            for t in range(S):
+                acc += dr[j, t] * basis[t, b]
+            G[j, b] = acc
+    for a in range(n_state):
+        for b in range(n_state):
             acc = 0.0
             for j in range(D):
-                acc += stoich[a, j] * dr[j, b]
+                acc += dirmap[a, j] * G[j, b]
             J[a, b] = acc
     for p in range(n_sens):
-        for a in range(S):
+        for a in range(n_state):
             acc = 0.0
-            for b in range(S):
-                acc += J[a, b] * z[S + b * n_sens + p]
-            if kind[p] == 0:
-                acc += stoich[a, jj[p]] * r[jj[p]]
-            elif kind[p] == 1:
+            for b in range(n_state):
+                acc += J[a, b] * z[n_state + b * n_sens + p]
+            if kind[p] == 0:                       # ln k of direction jj
+                acc += dirmap[a, jj[p]] * r[jj[p]]
+            elif kind[p] == 1:                     # exponent e[jj, ss]
                 j = jj[p]
                 t = ss[p]
                 d = k[j] * dlog[j, t]
@@ -179,93 +196,107 @@ def _rhs(z, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, out, ro
                     for s in range(S):
                         if s != t:
                             d *= pw[j, s]
-                acc += stoich[a, j] * d
-            out[row, S + a * n_sens + p] = acc
+                acc += dirmap[a, j] * d
+            else:                                  # starting concentration of ss
+                t = ss[p]
+                for j in range(D):
+                    acc += dirmap[a, j] * dr[j, t]
+            out[row, n_state + a * n_sens + p] = acc
 
 
 @njit(cache=True, error_model="numpy")
-def _rhs_call(z, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, out, row,
-              pw, slope, dlog, r, dr, J):
-    """:func:`_rhs` behind a call boundary, for the few calls outside the step loop."""
-    _rhs(z, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, out, row, pw, slope,
-         dlog, r, dr, J)
+def _rhs_call(z, n_state, n_sens, basis, dirmap, c0, k, E, present, eps, kind, jj, ss, out,
+              row, c, pw, slope, dlog, r, dr, G, J):
+    """:func:`_rhs` behind a call boundary, for the calls outside the step loop."""
+    _rhs(z, n_state, n_sens, basis, dirmap, c0, k, E, present, eps, kind, jj, ss, out, row, c,
+         pw, slope, dlog, r, dr, G, J)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _to_conc(z, n_state, n_sens, basis, c0, kind, ss, s, p):
+    """Concentration s (p < 0) or its sensitivity to kernel parameter p, from extents z."""
+    if p < 0:
+        acc = c0[s]
+        for i in range(n_state):
+            acc += basis[s, i] * z[i]
+        return acc
+    acc = 1.0 if (kind[p] == 2 and ss[p] == s) else 0.0
+    for i in range(n_state):
+        acc += basis[s, i] * z[n_state + i * n_sens + p]
+    return acc
 
 
 @njit(cache=True, error_model="numpy")
-def _norm(err, y, y_new, n, atol, rtol):
-    acc = 0.0
-    for i in range(n):
-        sc = atol[i] + max(abs(y[i]), abs(y_new[i])) * rtol
-        v = err[i] / sc
-        acc += v * v
-    return math.sqrt(acc / n)
-
-
-@njit(cache=True, error_model="numpy")
-def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out, rtol, atol,
-         max_steps, y_out, s_out, A, B, C, Ecoef, P):
+def _one(c0, n_state, n_sens, basis, dirmap, k, E, present, eps, kind, jj, ss, t_out, rtol,
+         atol, max_steps, y_out, s_out, A, B, C, Ecoef, P):
     """Integrate one system from t = 0, writing every requested output time.
+
+    The state is the extents z (zero at t = 0) and, with sensitivities,
+    ∂z/∂q; the error test and the outputs are in concentrations.
 
     Returns (status, accepted steps, right-hand-side evaluations).
     """
-    S = n_species
-    n = z0.size
+    S = c0.size
     D = E.shape[0]
+    n = n_state * (1 + n_sens)
     pw = np.empty((D, S))
     slope = np.empty((D, S))
     dlog = np.empty((D, S))
     r = np.empty(D)
     dr = np.empty((D, S))
-    J = np.empty((S, S))
+    G = np.empty((D, n_state))
+    J = np.empty((n_state, n_state))
+    c = np.empty(S)
     K = np.empty((7, n))
-    # error control on states and sensitivities alike (a sensitivity that is
-    # not controlled can grow without bound where the equations are stiff);
-    # sensitivities to a starting concentration are dimensionless
     scale = 0.0
     for a in range(S):
-        scale = max(scale, abs(z0[a]))
+        scale = max(scale, abs(c0[a]))
     scale = max(scale, 1e-300)
-    atol_vec = np.empty(n)
+    # absolute tolerance of each concentration-space component (states, then each
+    # sensitivity; sensitivities to a starting concentration are dimensionless)
+    n_c = S * (1 + n_sens)
+    atol_c = np.empty(n_c)
     for a in range(S):
-        atol_vec[a] = atol
-    for a in range(S):
+        atol_c[a] = atol
         for p in range(n_sens):
-            atol_vec[S + a * n_sens + p] = atol / scale if kind[p] == 2 else atol
-    z = z0.copy()
+            atol_c[S + a * n_sens + p] = atol / scale if kind[p] == 2 else atol
+    z = np.zeros(n)
     z_new = np.empty(n)
     tmp = np.empty(n)
     y6 = np.empty(n)
+    err = np.empty(n)
     A7 = np.zeros((7, 6))       # the tableau with the solution weights as its last row
     for i in range(6):
         for q in range(5):
             A7[i, q] = A[i, q]
     for q in range(6):
         A7[6, q] = B[q]
-    err = np.empty(n)
     n_out = t_out.size
     i_out = 0
-    # outputs at or before t = 0 are the starting values
     while i_out < n_out and t_out[i_out] <= 0.0:
         for a in range(S):
-            y_out[i_out, a] = z[a]
-        for a in range(S):
+            y_out[i_out, a] = c0[a]
             for p in range(n_sens):
-                s_out[i_out, a, p] = z[S + a * n_sens + p]
+                s_out[i_out, a, p] = 1.0 if (kind[p] == 2 and ss[p] == a) else 0.0
         i_out += 1
     if i_out == n_out:
         return OK, 0, 0
     t = 0.0
     t_end = t_out[n_out - 1]
-    _rhs_call(z, S, n_sens, stoich, k, E, present, eps, kind, jj, ss, K, 0, pw, slope, dlog,
-              r, dr, J)
+    _rhs_call(z, n_state, n_sens, basis, dirmap, c0, k, E, present, eps, kind, jj, ss, K, 0, c,
+              pw, slope, dlog, r, dr, G, J)
     n_rhs = 1
-    # initial step (Hairer, Nørsett & Wanner, II.4; as scipy's select_initial_step)
+    # initial step (Hairer, Nørsett & Wanner, II.4; as scipy's select_initial_step),
+    # measured on the concentrations
     acc0 = 0.0
     acc1 = 0.0
     for a in range(S):
-        sc = atol + abs(z[a]) * rtol
-        acc0 += (z[a] / sc) ** 2
-        acc1 += (K[0, a] / sc) ** 2
+        sc = atol + abs(c0[a]) * rtol
+        dc = 0.0
+        for i in range(n_state):
+            dc += basis[a, i] * K[0, i]
+        acc0 += (c0[a] / sc) ** 2
+        acc1 += (dc / sc) ** 2
     d0 = math.sqrt(acc0 / S)
     d1 = math.sqrt(acc1 / S)
     if d0 < 1e-5 or d1 < 1e-5:
@@ -275,13 +306,16 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
     h0 = min(h0, t_end)
     for a in range(n):
         tmp[a] = z[a] + h0 * K[0, a]
-    _rhs_call(tmp, S, n_sens, stoich, k, E, present, eps, kind, jj, ss, K, 1, pw, slope, dlog,
-              r, dr, J)
+    _rhs_call(tmp, n_state, n_sens, basis, dirmap, c0, k, E, present, eps, kind, jj, ss, K, 1,
+              c, pw, slope, dlog, r, dr, G, J)
     n_rhs += 1
     acc2 = 0.0
     for a in range(S):
-        sc = atol + abs(z[a]) * rtol
-        acc2 += ((K[1, a] - K[0, a]) / sc) ** 2
+        sc = atol + abs(c0[a]) * rtol
+        dd = 0.0
+        for i in range(n_state):
+            dd += basis[a, i] * (K[1, i] - K[0, i])
+        acc2 += (dd / sc) ** 2
     d2 = math.sqrt(acc2 / S) / h0
     if d1 <= 1e-15 and d2 <= 1e-15:
         h1 = max(1e-6, h0 * 1e-3)
@@ -308,8 +342,8 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
             if st == 5:
                 for a in range(n):
                     y6[a] = tmp[a]
-            _rhs(tmp, S, n_sens, stoich, k, E, present, eps, kind, jj, ss, K, st, pw, slope,
-                 dlog, r, dr, J)
+            _rhs(tmp, n_state, n_sens, basis, dirmap, c0, k, E, present, eps, kind, jj, ss, K,
+                 st, c, pw, slope, dlog, r, dr, G, J)
         for a in range(n):
             z_new[a] = tmp[a]
         n_rhs += 6
@@ -318,7 +352,19 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
             for q in range(7):
                 acc += Ecoef[q] * K[q, a]
             err[a] = h * acc
-        en = _norm(err, z, z_new, n, atol_vec, rtol)
+        # error norm in concentrations: states, then sensitivities
+        acc_e = 0.0
+        for s_ in range(S):
+            for p in range(-1, n_sens):
+                e_c = 0.0
+                for i in range(n_state):
+                    e_c += basis[s_, i] * err[i if p < 0 else n_state + i * n_sens + p]
+                y_old = _to_conc(z, n_state, n_sens, basis, c0, kind, ss, s_, p)
+                y_new = _to_conc(z_new, n_state, n_sens, basis, c0, kind, ss, s_, p)
+                at = atol_c[s_] if p < 0 else atol_c[S + s_ * n_sens + p]
+                v = e_c / (at + max(abs(y_old), abs(y_new)) * rtol)
+                acc_e += v * v
+        en = math.sqrt(acc_e / n_c)
         if not math.isfinite(en):
             h *= 0.2
             rejected = True
@@ -355,21 +401,22 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
                         q1 += kq * P[q, 1]
                         q2 += kq * P[q, 2]
                         q3 += kq * P[q, 3]
-                    v = z[a] + h * (q0 * p1 + q1 * p2 + q2 * p3 + q3 * p4)
-                    if a < S:
-                        y_out[i_out, a] = v
-                    else:
-                        b = (a - S) // n_sens
-                        p = (a - S) - b * n_sens
-                        s_out[i_out, b, p] = v
+                    tmp[a] = z[a] + h * (q0 * p1 + q1 * p2 + q2 * p3 + q3 * p4)
+                for s_ in range(S):
+                    y_out[i_out, s_] = _to_conc(tmp, n_state, n_sens, basis, c0, kind, ss, s_,
+                                                -1)
+                    for p in range(n_sens):
+                        s_out[i_out, s_, p] = _to_conc(tmp, n_state, n_sens, basis, c0, kind,
+                                                       ss, s_, p)
                 i_out += 1
             t = t_new
-            for a in range(S):
-                if abs(z[a]) > BLOWUP_FACTOR * scale:
-                    return BLOWUP, steps, n_rhs
             for a in range(n):
                 z[a] = z_new[a]
                 K[0, a] = K[6, a]
+            for s_ in range(S):
+                if abs(_to_conc(z, n_state, n_sens, basis, c0, kind, ss, s_, -1)) > \
+                        BLOWUP_FACTOR * scale:
+                    return BLOWUP, steps, n_rhs
             steps += 1
             if en == 0.0:
                 factor = 10.0
@@ -389,22 +436,18 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
 
 
 @njit(cache=True, error_model="numpy")
-def _batch(stoich, present, y0, k, E, eps, t_out, out_start, rtol, atol, max_steps, kind,
-           jj, ss, y_out, s_out, status, steps, A, B, C, Ecoef, P):
-    n_sys, S = y0.shape
+def _batch(basis, dirmap, present, y0, k, E, eps, t_out, out_start, rtol, atol, max_steps,
+           kind, jj, ss, y_out, s_out, status, steps, A, B, C, Ecoef, P):
+    """Every system, with the sensitivities of `kind`."""
+    n_sys = y0.shape[0]
+    n_state = basis.shape[1]
     n_sens = kind.size
     n_rhs = 0
     for i in range(n_sys):
-        z0 = np.zeros(S * (1 + n_sens))
-        for a in range(S):
-            z0[a] = y0[i, a]
-        for p in range(n_sens):
-            if kind[p] == 2:
-                z0[S + ss[p] * n_sens + p] = 1.0
         lo = out_start[i]
         hi = out_start[i + 1]
-        st, nst, nr = _one(z0, S, n_sens, stoich, k[i], E[i], present, eps[i], kind, jj, ss,
-                           t_out[lo:hi], rtol, atol[i], max_steps, y_out[lo:hi],
+        st, nst, nr = _one(y0[i], n_state, n_sens, basis, dirmap, k[i], E[i], present, eps[i],
+                           kind, jj, ss, t_out[lo:hi], rtol, atol[i], max_steps, y_out[lo:hi],
                            s_out[lo:hi], A, B, C, Ecoef, P)
         status[i] = st
         steps[i] = nst
@@ -412,8 +455,28 @@ def _batch(stoich, present, y0, k, E, eps, t_out, out_start, rtol, atol, max_ste
     return n_rhs
 
 
+@njit(cache=True, error_model="numpy")
+def _batch_states(basis, dirmap, present, y0, k, E, eps, t_out, out_start, rtol, atol,
+                  max_steps, kind, y_out, s_out, status, steps, A, B, C, Ecoef, P):
+    """Every system, states only: with no sensitivities known when compiling, the
+    optimiser drops their loops from this copy (about twice as fast)."""
+    n_sys = y0.shape[0]
+    n_state = basis.shape[1]
+    n_rhs = 0
+    for i in range(n_sys):
+        lo = out_start[i]
+        hi = out_start[i + 1]
+        st, nst, nr = _one(y0[i], n_state, 0, basis, dirmap, k[i], E[i], present, eps[i],
+                           kind, kind, kind, t_out[lo:hi], rtol, atol[i], max_steps,
+                           y_out[lo:hi], s_out[lo:hi], A, B, C, Ecoef, P)
+        status[i] = st
+        steps[i] = nst
+        n_rhs += nr
+    return n_rhs
+
+
 def integrate_batch(stoich, present, y0, k, E, t_out, out_start, *, rtol, atol, eps,
-                    sens=None, max_steps=20_000):
+                    sens=None, max_steps=20_000, basis=None):
     """Integrate many systems with the compiled Dormand–Prince 5(4) method.
 
     Parameters
@@ -435,12 +498,17 @@ def integrate_batch(stoich, present, y0, k, E, t_out, out_start, *, rtol, atol, 
         ``None`` for states only.
     max_steps : int
         Accepted steps allowed per system before it is reported stiff.
+    basis : tuple (N [n_species, n_state], M [n_state, n_directions]), optional
+        Integrate n_state extents z with c = c0 + N z and dz/dt = M r(c)
+        (see :attr:`kinfit.mechanism.Mechanism.extents`): fewer equations when
+        a mechanism has fewer steps than species. Default: the concentrations
+        themselves (N = I, M = stoich).
 
     Returns
     -------
     y_out : ndarray [n_out_total, n_species]
     s_out : ndarray [n_out_total, n_species, n_sens]
-    status : ndarray [n_sys] of int (OK, STIFF, FAILED)
+    status : ndarray [n_sys] of int (OK, STIFF, FAILED, BLOWUP)
     n_rhs : int
         Right-hand-side evaluations, all systems together.
     """
@@ -449,20 +517,26 @@ def integrate_batch(stoich, present, y0, k, E, t_out, out_start, *, rtol, atol, 
     jj = np.ascontiguousarray(jj, dtype=np.int64)
     ss = np.ascontiguousarray(ss, dtype=np.int64)
     n_out, S = t_out.size, y0.shape[1]
+    if basis is None:
+        basis = (np.eye(S), stoich)
     y_out = np.empty((n_out, S))
     s_out = np.empty((n_out, S, kind.size))
     status = np.empty(y0.shape[0], dtype=np.int64)
     steps = np.empty(y0.shape[0], dtype=np.int64)
-    n_rhs = _batch(np.ascontiguousarray(stoich, dtype=np.float64),
-                   np.ascontiguousarray(present, dtype=np.bool_),
-                   np.ascontiguousarray(y0, dtype=np.float64),
-                   np.ascontiguousarray(k, dtype=np.float64),
-                   np.ascontiguousarray(E, dtype=np.float64),
-                   np.ascontiguousarray(eps, dtype=np.float64),
-                   np.ascontiguousarray(t_out, dtype=np.float64),
-                   np.ascontiguousarray(out_start, dtype=np.int64), float(rtol),
-                   np.ascontiguousarray(atol, dtype=np.float64), int(max_steps), kind, jj, ss,
-                   y_out, s_out, status, steps, _A, _B, _C, _E, _P)
+    common = (np.ascontiguousarray(basis[0], dtype=np.float64),
+              np.ascontiguousarray(basis[1], dtype=np.float64),
+              np.ascontiguousarray(present, dtype=np.bool_),
+              np.ascontiguousarray(y0, dtype=np.float64),
+              np.ascontiguousarray(k, dtype=np.float64),
+              np.ascontiguousarray(E, dtype=np.float64),
+              np.ascontiguousarray(eps, dtype=np.float64),
+              np.ascontiguousarray(t_out, dtype=np.float64),
+              np.ascontiguousarray(out_start, dtype=np.int64), float(rtol),
+              np.ascontiguousarray(atol, dtype=np.float64), int(max_steps))
+    if kind.size:
+        n_rhs = _batch(*common, kind, jj, ss, y_out, s_out, status, steps, _A, _B, _C, _E, _P)
+    else:
+        n_rhs = _batch_states(*common, kind, y_out, s_out, status, steps, _A, _B, _C, _E, _P)
     return y_out, s_out, status, int(n_rhs)
 
 

@@ -124,6 +124,10 @@ class Mechanism:
         Net stoichiometric numbers; zero rows for held-constant species.
     directions : tuple of (step index, PowerLaw, sign)
         One entry per column of `stoichiometry`.
+    extents : (N [n_species, n_steps], M [n_steps, n_directions]) or None
+        When the mechanism has fewer steps than species: the concentrations as
+        c = c0 + N z in one extent of reaction z per step, dz/dt = M r, which
+        the compiled integrator uses to integrate fewer equations.
     """
 
     name: str
@@ -141,6 +145,7 @@ class Mechanism:
     _order_const: np.ndarray = field(default=None, repr=False, compare=False)
     _order_coef: np.ndarray = field(default=None, repr=False, compare=False)
     present: np.ndarray = field(default=None, repr=False, compare=False)
+    extents: tuple | None = field(default=None, repr=False, compare=False)
 
     @property
     def parameter_names(self):
@@ -668,7 +673,15 @@ def _compile(mech):
             order_const[j, index[s]] = affine.const
             for pname, c in affine.coef:
                 order_coef[j, index[s], names.index(pname)] = c
+    # extents of reaction: c = c0 + N z with one extent per step, dz/dt = M r
+    net = np.zeros((n_species, len(mech.steps)))
+    dirmap = np.zeros((len(mech.steps), n_dir))
+    for j, (i, law, sign) in enumerate(directions):
+        net[:, i] = sign * stoich[:, j]
+        dirmap[i, j] = sign
+    extents = (net, dirmap) if len(mech.steps) < n_species else None
     fields = dict(stoichiometry=stoich, directions=tuple(directions), _factor=factor,
+                  extents=extents,
                   _constant_index=constant_index, _order_const=order_const,
                   _order_coef=order_coef, present=present)
     for key, value in fields.items():

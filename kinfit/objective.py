@@ -257,7 +257,8 @@ class Problem:
                              conc0.reshape(n_sets * n_runs, -1), k, orders, t_out, out_start,
                              method=self.method, rtol=self.rtol, atol=self.atol,
                              max_rhs=max_rhs or self.max_rhs,
-                             sens=lay["sens"] if jacobian else None, fallback=fallback)
+                             sens=lay["sens"] if jacobian else None, fallback=fallback,
+                             extents=self.mechanism.extents)
         species = self.observation.species_index
         pred = sol.conc[rows, species[None, :]]
         ok = sol.ok.reshape(n_sets, n_runs).all(axis=1)

@@ -294,7 +294,7 @@ def _implicit_one(stoich, present, c0, k, orders, t_out, method, rtol, atol, max
 
 def integrate_flat(stoichiometry, present, conc0, k, orders, t_out, out_start, *,
                    method="auto", rtol=RTOL, atol=ATOL, max_rhs=MAX_RHS_CALLS, sens=None,
-                   fallback=True):
+                   fallback=True, extents=None):
     """Integrate many systems, each with its own output times, in one call.
 
     Parameters
@@ -323,6 +323,9 @@ def integrate_flat(stoichiometry, present, conc0, k, orders, t_out, out_start, *
     fallback : bool
         With "auto", whether stiff systems are handed to LSODA (a screen of
         many rough candidates may prefer to drop them).
+    extents : tuple, optional
+        ``Mechanism.extents``: lets the compiled integrator work in extents of
+        reaction (fewer equations when there are fewer steps than species).
 
     Returns
     -------
@@ -339,7 +342,7 @@ def integrate_flat(stoichiometry, present, conc0, k, orders, t_out, out_start, *
         conc, sens_out, status, n_rhs = integrate_batch(
             stoichiometry, present, conc0, k, orders, t_out, out_start, rtol=rtol,
             atol=atol * scale, eps=1e-9 * scale, sens=sens,
-            max_steps=max(1000, max_rhs // 6))
+            max_steps=max(1000, max_rhs // 6), basis=extents)
         # systems found stiff go to the implicit methods; a system whose steps collapsed
         # or whose concentrations diverge has a singularity no method will pass
         todo = np.flatnonzero(status == STIFF) if (method == "auto" and fallback) else []
@@ -436,7 +439,8 @@ def simulate_runs(mechanism, rates_by_run, conc0, times, *, method="auto", rtol=
         n_sets * n_runs, *rates_by_run[0][1].shape[1:])
     sol = integrate_flat(mechanism.stoichiometry, mechanism.present,
                          conc0.reshape(n_sets * n_runs, -1), k, orders, t_out, out_start,
-                         method=method, rtol=rtol, atol=atol, max_rhs=max_rhs)
+                         method=method, rtol=rtol, atol=atol, max_rhs=max_rhs,
+                         extents=mechanism.extents)
     conc = []
     for r in range(n_runs):
         rows = [sol.conc[out_start[s * n_runs + r]:out_start[s * n_runs + r + 1]]
@@ -491,7 +495,8 @@ def simulate(mechanism, initial, values=None, times=None, *, method="auto", rtol
     conc0 = initial_array(mechanism, start)
     k, orders = mechanism.rate_arrays(row)
     sol = integrate_flat(mechanism.stoichiometry, mechanism.present, conc0[None], k, orders,
-                         times, np.array([0, times.size]), method=method, rtol=rtol, atol=atol)
+                         times, np.array([0, times.size]), method=method, rtol=rtol, atol=atol,
+                         extents=mechanism.extents)
     used = method if method not in ("auto", "compiled") else (
         "LSODA" if sol.n_implicit else "compiled Rosenbrock 4(3)" if sol.n_stiff
         else "compiled Dormand-Prince 5(4)")
