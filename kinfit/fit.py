@@ -450,6 +450,9 @@ def _local_fit(evaluator, u0, max_evaluations):
             break
         diag = np.diag(nf).copy()
         diag[diag <= 0] = 1.0
+        # a direction the data do not see (a parameter whose effect the linear
+        # unknowns of signals take up) must not get an unbounded step
+        diag = np.maximum(diag, 1e-10 * diag.max())
         try:
             step_f = np.linalg.solve(nf + damping * np.diag(diag), -gf)
         except np.linalg.LinAlgError:

@@ -205,13 +205,13 @@ def _locate(lines, separator, anchor):
         cols = [c for c, cell in enumerate(header) if anchor(cell)]
         if not cols:
             continue
-        for j in range(i + 1, len(lines)):
-            if lines[j].strip():
-                row = _fields(lines[j], separator)
-                cell = row[cols[0]] if len(row) > cols[0] else ""
-                if _NUMBER_DOT.match(cell) or _NUMBER_COMMA.match(cell):
-                    return i, header
-                break
+        below = next((j for j in range(i + 1, len(lines)) if lines[j].strip()), None)
+        if below is None:
+            return i, header              # a header with no rows: said so when read
+        row = _fields(lines[below], separator)
+        cell = row[cols[0]] if len(row) > cols[0] else ""
+        if _NUMBER_DOT.match(cell) or _NUMBER_COMMA.match(cell):
+            return i, header
     return None
 
 

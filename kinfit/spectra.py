@@ -473,10 +473,18 @@ class SignalModel:
         dpred = dpred[:, :, list(free)]
         coefficients, warnings, spectra = [], list(self.notes), None
         channel_models = {}
+        # how much of each parameter's effect survives the projection
+        sigma = problem.observation.sigma
+        conc_w = 1.0 if sigma is None else 1.0 / sigma[self.conc_flat][:, None]
+        direct = dpred[0, self.conc_inner] * conc_w
+        raw_ss = proj_ss = np.sum(direct ** 2, axis=0)
         for block in self.full_blocks:
             conc = pred[:, block.conc_index]
             sens = dpred[:, block.conc_index]
             sol = solve_block(block, conc, nonnegative=True)
+            raw_ss = raw_ss + np.sum(_raw_jacobian(block, sens, sol.beta) ** 2, axis=(0, 1, 2))
+            proj_ss = proj_ss + np.sum(_project_jacobian(block, sol, sens, exact=False) ** 2,
+                                       axis=(0, 1, 2))
             s2 = scale
             if self.reduced and block.wavelengths is not None and not _declared(block):
                 dof = block.values.size - block.n_linear - len(free)
@@ -488,6 +496,17 @@ class SignalModel:
                 channel_models.update(_channel_models(block, sol, self))
             else:
                 spectra = _resolved(block, sol, var, self, s2)
+        names = [problem.names[i] for i in free]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            kept = np.sqrt(proj_ss / raw_ss)
+        for name, share in zip(names, kept):
+            if np.isfinite(share) and share < 1e-6:
+                warnings.append(
+                    f"{name} changes the signals only in ways the linear unknowns "
+                    f"(absorptivities, offsets, drifts) take up, so the data cannot determine "
+                    f"it (e.g. the time offset of a first-order decay, or a starting "
+                    f"concentration, when the absorptivity is unknown); fix it or make an "
+                    f"absorptivity known")
         return SignalFit(coefficients=tuple(coefficients), spectra=spectra,
                          components=self.components, warnings=tuple(warnings),
                          channel_models=channel_models, unit=self.spec.unit,
