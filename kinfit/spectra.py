@@ -74,7 +74,8 @@ from .errors import KinfitError
 from .observables import Observation, build_observation
 
 __all__ = ["SignalModel", "SignalFit", "Coefficient", "ResolvedSpectra", "Components",
-           "build_signal_model", "significant_components", "absorbance",
+           "build_signal_model", "significant_components", "absorbance", "choose_wavelengths",
+           "stacked_spectra",
            "KIND_ABSORPTIVITY", "KIND_OFFSET", "KIND_DRIFT"]
 
 KIND_ABSORPTIVITY = "absorptivity"
@@ -863,6 +864,35 @@ def _resolved(block, sol, var, model, s2):
                            stderr=stderr, baselines=baselines, runs=runs, fitted=fitted,
                            residual_sum=rss, n_points=block.values.size, sigma=sigma,
                            unit=_units_of(KIND_ABSORPTIVITY, model))
+
+
+def choose_wavelengths(spectra, requested=None, most=4):
+    """Wavelengths of the data to show traces at.
+
+    Parameters
+    ----------
+    spectra : ResolvedSpectra
+    requested : sequence of float, optional
+        Wanted wavelengths; each is moved to the nearest measured one.
+    most : int
+        Without a request: the peak of each species' spectrum, at most this many.
+
+    Returns
+    -------
+    list of float
+    """
+    wl = spectra.wavelengths
+    if requested:
+        picks = [float(wl[int(np.argmin(np.abs(wl - w)))]) for w in requested]
+    else:
+        picks = [float(wl[int(np.argmax(np.abs(v)))]) for v in spectra.values]
+    return list(dict.fromkeys(picks))[:max(most, len(requested or ()))]
+
+
+def stacked_spectra(experiment):
+    """The spectra of all runs stacked [times of all runs, wavelengths], or None."""
+    parts = [run.spectrum.values for run in experiment.runs if run.spectrum is not None]
+    return np.concatenate(parts, axis=0) if parts else None
 
 
 # -------------------------------------------------------------------- SVD

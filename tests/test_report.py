@@ -99,3 +99,24 @@ def test_write_prediction(tmp_path, arrhenius_study):
     assert header == "time,A,P,A_lower,A_upper,P_lower,P_upper"
     data = json.loads((tmp_path / "p" / "prediction.json").read_text())
     assert data["extrapolated"] is True and "calorimetry" in data["cautions"]
+
+
+def test_signal_summary_and_files():
+    from conftest import DEMO
+    from kinfit.report import format_components, format_signals, signal_outputs
+
+    folder = DEMO / "spectra"
+    mech = load_mechanism(folder / "dye_formation.toml")
+    result = fit(load_experiment(folder / "spectra.toml"), mech, starts=1)
+    text = format_signals(result, [400.0])
+    assert "spectra of precursor, intermediate, dye resolved at 71 wavelengths" in text
+    assert "significant components: 3" in text and "the fit used the leading 3" in text
+    first = format_components(result.signals.components).splitlines()[0]
+    assert "  " + first in text
+    files, summary = signal_outputs(result)
+    assert summary == format_signals(result)
+    assert set(files) >= {"spectra.csv", "spectra.png", "spectra.svg", "components.png",
+                          "residual_map.png", "residual_map_r1.csv", "wavelength_traces.png"}
+    rows = files["spectra.csv"].splitlines()
+    assert len(rows) == 72
+    assert json.loads(json.dumps(result.to_dict()))["signals"]["reduced"] is True
