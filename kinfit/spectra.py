@@ -83,6 +83,22 @@ KIND_OFFSET = "offset"
 KIND_DRIFT = "drift"
 _RCOND = 1e-10           # singular values of the column-scaled design below this are zero
 _CHUNK = 2_000_000       # largest sets x channels x rows handled at once
+_CONTROLLER = []
+
+
+def one_blas_thread():
+    """A context running BLAS/LAPACK on one thread (threadpoolctl).
+
+    The matrices here are small (a design of a few columns, spectra of a few
+    hundred wavelengths); on a shared two-core machine the multi-threaded SVD
+    of a 1200 x 300 matrix was measured at 0.4-2.4 s against 0.03 s on one
+    thread (tests/benchmarks/bench_spectra.py).
+    """
+    if not _CONTROLLER:
+        from threadpoolctl import ThreadpoolController
+
+        _CONTROLLER.append(ThreadpoolController())
+    return _CONTROLLER[0].limit(limits=1, user_api="blas")
 
 
 def absorbance(epsilon, path_length, conc):
@@ -262,12 +278,12 @@ def solve_block(block, conc, nonnegative=True):
     """
     w = block.row_weight
     xw = block.design(conc) * w[None, :, None]
-    f0 = np.einsum("sra,ca->scr", conc, block.known) * block.path[None, None, :]
-    target = (block.values[None] - f0) * w[None, None, :]
+    f0 = (conc @ block.known.T) * block.path[None, :, None]                  # [S, R, C]
+    target = ((block.values.T[None] - f0) * w[None, :, None]).transpose(0, 2, 1)
     fac = _factor(xw)
-    utt = np.einsum("srk,scr->sck", fac.u, target)
-    beta = np.einsum("skj,sck->scj", fac.vt, utt * fac.inv[:, None, :]) / fac.norms[:, None, :]
-    resid = target - np.einsum("srk,sck->scr", fac.u, utt)
+    utt = target @ fac.u                                                      # [S, C, K]
+    beta = ((utt * fac.inv[:, None, :]) @ fac.vt) / fac.norms[:, None, :]     # [S, C, J]
+    resid = target - utt @ fac.u.transpose(0, 2, 1)                           # [S, C, R]
     active = np.zeros(beta.shape, dtype=bool)
     special = {}
     if nonnegative and block.nonneg.any():
@@ -318,42 +334,49 @@ def _pinv_t(fac, g):
 def _project_jacobian(block, sol, conc_sens, exact=True):
     """∂r/∂θ of the projected weighted residual r = W(f₀ + X β̂ − y).
 
-    Kaufman's part −P⊥·W∂(f₀ + Xβ)/∂θ at fixed β̂ always; with `exact`, also
+    Kaufman's part P⊥·W∂(f₀ + Xβ)/∂θ at fixed β̂ always; with `exact`, also
     the Golub–Pereyra term −(A⁺)ᵀ (W∂X/∂θ)ᵀ r, which makes it the exact
-    derivative (A = W X).
+    derivative (A = W X). Matrix products over all channels at once.
 
     Returns
     -------
-    ndarray [n_sets, n_channels, n_rows, n_params]
+    ndarray [n_sets, n_rows, n_channels, n_params]
     """
     raw = _raw_jacobian(block, conc_sens, sol.beta)
-    u = sol.factors.u
-    proj = raw - np.einsum("srk,sckp->scrp", u, np.einsum("srk,scrp->sckp", u, raw))
-    dxw = _design_derivative(block, conc_sens) if exact else None
+    n_sets, n_rows, n_ch, n_par = raw.shape
+    u = sol.factors.u                                                  # [S, R, K]
+    flat = raw.reshape(n_sets, n_rows, n_ch * n_par)
+    proj = flat - u @ (u.transpose(0, 2, 1) @ flat)
+    dxw = _design_derivative(block, conc_sens) if exact else None     # [S, R, J, P]
     if exact:
-        g = np.einsum("srjp,scr->scjp", dxw, -sol.resid) / sol.factors.norms[:, None, :, None]
-        t = np.einsum("skj,scjp->sckp", sol.factors.vt, g) * sol.factors.inv[:, None, :, None]
-        proj -= np.einsum("srk,sckp->scrp", u, t)
+        n_col = dxw.shape[2]
+        g = (-sol.resid) @ dxw.reshape(n_sets, n_rows, n_col * n_par)   # [S, C, J·P]
+        g = g.reshape(n_sets, n_ch, n_col, n_par) / sol.factors.norms[:, None, :, None]
+        t = (sol.factors.vt[:, None] @ g) * sol.factors.inv[:, None, :, None]   # [S, C, K, P]
+        k = t.shape[2]
+        proj -= u @ t.transpose(0, 2, 1, 3).reshape(n_sets, k, n_ch * n_par)
+    proj = proj.reshape(n_sets, n_rows, n_ch, n_par)
     for (s_i, c), fac in sol.special.items():
-        own = raw[s_i, c] - fac.u @ (fac.u.T @ raw[s_i, c])
+        own = raw[s_i, :, c] - fac.u @ (fac.u.T @ raw[s_i, :, c])
         if exact:
-            g = np.einsum("rjp,r->jp", dxw[s_i][:, fac.free], -sol.resid[s_i, c])
+            g = np.tensordot(-sol.resid[s_i, c], dxw[s_i][:, fac.free], axes=(0, 0))
             own -= _pinv_t(fac, g)
-        proj[s_i, c] = own
+        proj[s_i, :, c] = own
     return proj
 
 
 def _raw_jacobian(block, conc_sens, beta):
-    """W ∂(f₀ + Xβ)/∂θ at fixed β [n_sets, n_channels, n_rows, n_params]."""
-    n_abs = len(block.absorbers)
-    # effective absorptivity ℓ·ε of each absorber in each row: known plus solved
-    eff = np.broadcast_to(block.known[None, :, None, :] * block.path[None, None, :, None],
-                          beta.shape[:2] + (block.coef.shape[0], n_abs)).copy()
-    for j, a in enumerate(block.feature):
-        if a >= 0:
-            eff[..., a] += beta[:, :, None, j] * block.coef[None, None, :, j]
-    raw = np.einsum("scra,srap->scrp", eff, conc_sens)
-    return raw * block.row_weight[None, None, :, None]
+    """W ∂(f₀ + Xβ)/∂θ at fixed β [n_sets, n_rows, n_channels, n_params]."""
+    n_sets, n_ch = beta.shape[:2]
+    n_rows, n_abs = conc_sens.shape[1], conc_sens.shape[2]
+    # effective ℓ·ε of each absorber in each row and channel: known plus solved
+    eff = np.empty((n_sets, n_rows, n_ch, n_abs))
+    for a in range(n_abs):
+        cols = np.flatnonzero(block.feature == a)
+        eff[..., a] = (block.path[:, None] * block.known[None, :, a])[None] + (
+            block.coef[None][:, :, cols] @ beta[:, :, cols].transpose(0, 2, 1))
+    eff *= block.row_weight[None, :, None, None]
+    return eff @ conc_sens                                     # [S, R, C, P]
 
 
 # ------------------------------------------------------------------ model
@@ -427,6 +450,10 @@ class SignalModel:
             weights, so that dpred/σ is its Jacobian: exact (Golub–Pereyra),
             or Kaufman's projection when ``exact`` is false.
         """
+        with one_blas_thread():
+            return self._project(inner_pred, inner_dpred, ok)
+
+    def _project(self, inner_pred, inner_dpred, ok):
         n_sets = inner_pred.shape[0]
         inner_pred = np.where(ok[:, None], np.nan_to_num(inner_pred), 0.0)
         pred = np.empty((n_sets, self.n_points))
@@ -443,11 +470,14 @@ class SignalModel:
                 conc = inner_pred[sl][:, block.conc_index]
                 sol = solve_block(block, conc)
                 w = block.row_weight
-                pred[sl, block.flat] = block.values[None] - sol.resid / w[None, None, :]
+                flat = _as_slice(block.flat)
+                pred[sl, flat] = (block.values[None] - sol.resid / w[None, None, :]).reshape(
+                    pred[sl, flat].shape)
                 if dpred is not None:
                     sens = inner_dpred[sl][:, block.conc_index]
                     jac = _project_jacobian(block, sol, sens, self.exact)
-                    dpred[sl, block.flat] = jac / w[None, None, :, None]
+                    jac = jac.transpose(0, 2, 1, 3) / w[None, None, :, None]
+                    dpred[sl, flat] = jac.reshape(dpred[sl, flat].shape)
         return pred, dpred
 
     def resolve(self, problem, values, covariance, free, scale):
@@ -471,6 +501,10 @@ class SignalModel:
         """
         inner = replace(problem, signal=None)
         pred, ok, dpred, _ = inner.evaluate(np.atleast_2d(values), jacobian=True)
+        with one_blas_thread():
+            return self._resolve(problem, pred, dpred, covariance, free, scale)
+
+    def _resolve(self, problem, pred, dpred, covariance, free, scale):
         dpred = dpred[:, :, list(free)]
         coefficients, warnings, spectra = [], list(self.notes), None
         channel_models = {}
@@ -514,6 +548,14 @@ class SignalModel:
                          reduced=self.reduced, n_linear=self.n_linear)
 
 
+def _as_slice(flat):
+    """A slice when the positions [C, R] are one contiguous run, else the array."""
+    first = int(flat.flat[0])
+    if np.array_equal(flat.ravel(), np.arange(first, first + flat.size)):
+        return slice(first, first + flat.size)
+    return flat
+
+
 def _declared(block):
     return not np.all(block.row_weight == 1.0)
 
@@ -531,14 +573,15 @@ def _linear_covariance(block, sol, sens, covariance, s2):
     n_ch, n_col = block.values.shape[0], len(block.columns)
     var = np.full((n_ch, n_col), np.nan)
     cross = [None] * n_ch
-    raw = _raw_jacobian(block, sens, sol.beta)[0]             # [n_ch, rows, n_free]
+    raw = _raw_jacobian(block, sens, sol.beta)[0]             # [rows, n_ch, n_free]
     a_all = sol.scaled[0]
     shared = not sol.special
     if shared:
         g_inv = _pinv_or_none(a_all.T @ a_all)
         if g_inv is None:
             return var, cross
-        k = np.einsum("ij,rj,crp->cip", g_inv, a_all, raw)     # [n_ch, n_col, n_free]
+        h = np.tensordot(a_all, raw, axes=(0, 0))               # [n_col, n_ch, n_free]
+        k = (g_inv @ h.reshape(n_col, -1)).reshape(h.shape).transpose(1, 0, 2)
         var[:] = s2 * np.diag(g_inv)[None, :]
         if covariance is not None:
             var += np.einsum("cip,pq,ciq->ci", k, covariance, k)
@@ -550,7 +593,7 @@ def _linear_covariance(block, sol, sens, covariance, s2):
         g_inv = _pinv_or_none(a.T @ a)
         if g_inv is None:
             continue
-        k = g_inv @ a.T @ raw[c]
+        k = g_inv @ a.T @ raw[:, c]
         v = s2 * np.diag(g_inv)
         if covariance is not None:
             v = v + np.einsum("ip,pq,iq->i", k, covariance, k)
@@ -937,7 +980,10 @@ def significant_components(data, sigma=None, n_used=None, singular_values=None):
     λ*(1) = 4/√3.
     """
     data = np.asarray(data, dtype=float)
-    s = np.linalg.svd(data, compute_uv=False) if singular_values is None else singular_values
+    if singular_values is None:
+        with one_blas_thread():
+            singular_values = np.linalg.svd(data, compute_uv=False)
+    s = singular_values
     m, n = sorted(data.shape)
     beta = m / n
     if sigma is not None:
@@ -1227,7 +1273,8 @@ def _reduce(blocks, measured, spec, components):
     setting = spec.spectra.components if components is None else components
     data = block.values.T                                          # [rows, n_w]
     sigma = spec.spectra.noise
-    _, singular, vt = np.linalg.svd(data, full_matrices=False)
+    with one_blas_thread():
+        _, singular, vt = np.linalg.svd(data, full_matrices=False)
     comps = significant_components(data, sigma, singular_values=singular)
     notes = []
     n_abs = len(block.absorbers)
