@@ -33,7 +33,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import KinfitError, where
-from .instrument import read_table
+from .instrument import check_times, read_table
 from .mechanism import Parameter
 from .signals import parse_path_length, parse_signals, read_spectrum, table_times
 from .sources import decode, find_line, load_toml, resolve_file
@@ -554,18 +554,7 @@ def _numbers(column, lines, shown, label, allow_blank=False):
 
 
 def _check_times(times, lines, shown, what):
-    if times.size and times.min() < 0:
-        i = int(np.flatnonzero(times < 0)[0])
-        raise KinfitError(f"{shown}, line {lines[i]}: negative time {times[i]:g} ({what}); "
-                          f"times are measured from the start of the reaction")
-    steps = np.diff(times)
-    if (steps <= 0).any():
-        i = int(np.flatnonzero(steps <= 0)[0]) + 1
-        if steps[i - 1] == 0:
-            raise KinfitError(f"{shown}, line {lines[i]}: time {times[i]:g} is repeated "
-                              f"({what}, also at line {lines[i - 1]})")
-        raise KinfitError(f"{shown}, line {lines[i]}: time is not increasing ({what}: "
-                          f"t={times[i]:g} after t={times[i - 1]:g})")
+    check_times(times, lines, shown, what)
 
 
 def _read_long(path, shown, listed, own_file, starts=None):

@@ -93,23 +93,22 @@ def _epsilon_at(wavelength):
     return np.array([np.interp(wavelength, WAVELENGTHS, row) for row in true_spectra()])
 
 
+def _head(comments, name, offset):
+    """The opening lines of a demo experiment file, up to its [signals] table."""
+    return [f"# {line}" for line in comments] + [
+        f'name = "{name}"', "", "[units]", 'time = "s"', 'concentration = "mM"', "",
+        "[signals]", "path_length = 1.0          # cm", f"offset = {offset}", ""]
+
+
 def _absorbance_experiment():
     eps = _epsilon_at(CHANNEL)
-    lines = [
-        "# Quillmere Dyes (invented): dye synthesis followed at 510 nm in a 1 cm cell.",
-        "# Each run's export starts 2 s before mixing; readings before the start are",
-        "# left out and the mixing dead time is fitted. The precursor's absorptivity",
-        "# at 510 nm was measured on the pure compound.",
-        'name = "dye synthesis, absorbance at 510 nm"',
-        "",
-        "[units]",
-        'time = "s"',
-        'concentration = "mM"',
-        "",
-        "[signals]",
-        "path_length = 1.0          # cm",
-        'offset = "per run"         # each run has its own blank',
-        "",
+    lines = _head([
+        "Quillmere Dyes (invented): dye synthesis followed at 510 nm in a 1 cm cell.",
+        "Each run's export starts 2 s before mixing; readings before the start are",
+        "left out and the mixing dead time is fitted. The precursor's absorptivity",
+        "at 510 nm was measured on the pure compound."],
+        "dye synthesis, absorbance at 510 nm",
+        '"per run"         # each run has its own blank') + [
         "[signals.channels]",
         f'A510 = {{ precursor = {eps[0]:.4f}, intermediate = "unknown", dye = "unknown" }}',
         "",
@@ -124,18 +123,9 @@ def _absorbance_experiment():
 
 
 def _spectra_experiment():
-    lines = [
-        "# Quillmere Dyes (invented): diode-array spectra of three runs, blank-subtracted.",
-        'name = "dye synthesis, full spectra"',
-        "",
-        "[units]",
-        'time = "s"',
-        'concentration = "mM"',
-        "",
-        "[signals]",
-        "path_length = 1.0",
-        'offset = "none"            # the instrument subtracted each blank',
-        "",
+    lines = _head(["Quillmere Dyes (invented): diode-array spectra of three runs, "
+                   "blank-subtracted."], "dye synthesis, full spectra",
+                  '"none"            # the instrument subtracted each blank') + [
         "[signals.spectra]",
         'absorbers = ["precursor", "intermediate", "dye"]',
         'components = "auto"        # fit the significant singular vectors',

@@ -35,7 +35,8 @@ import numpy as np
 from .errors import KinfitError
 from .sources import decode
 
-__all__ = ["Table", "read_table", "table_from_text", "split_unit", "SEPARATORS"]
+__all__ = ["Table", "read_table", "table_from_text", "split_unit", "check_times",
+           "SEPARATORS"]
 
 SEPARATORS = {",": "comma", ";": "semicolon", "\t": "tab"}
 _NUMBER_DOT = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
@@ -360,3 +361,34 @@ def read_table(path, shown=None, anchor="time"):
     """
     shown = str(path) if shown is None else shown
     return table_from_text(decode(Path(path).read_bytes(), shown), shown, anchor)
+
+
+def check_times(times, lines, shown, what=None, hint=""):
+    """Refuse negative, repeated or decreasing times, naming the line.
+
+    Parameters
+    ----------
+    times : ndarray [n]
+    lines : ndarray [n] of int
+    shown : str
+        The file, as named in messages.
+    what : str, optional
+        Which trace, for the message ("run 'r1', A").
+    hint : str
+        Added to the message about a negative time.
+    """
+    about = f" ({what})" if what else ""
+    if times.size and times.min() < 0:
+        i = int(np.flatnonzero(times < 0)[0])
+        raise KinfitError(f"{shown}, line {lines[i]}: negative time {times[i]:g}{about}; "
+                          f"times are measured from the start of the reaction{hint}")
+    steps = np.diff(times)
+    if (steps <= 0).any():
+        i = int(np.flatnonzero(steps <= 0)[0]) + 1
+        if steps[i - 1] == 0:
+            also = f"{what}, also" if what else "also"
+            raise KinfitError(f"{shown}, line {lines[i]}: time {times[i]:g} is repeated "
+                              f"({also} at line {lines[i - 1]})")
+        trace = f"{what}: " if what else ""
+        raise KinfitError(f"{shown}, line {lines[i]}: time is not increasing ({trace}"
+                          f"t={times[i]:g} after t={times[i - 1]:g})")

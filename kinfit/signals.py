@@ -25,7 +25,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import KinfitError, where
-from .instrument import read_table
+from .instrument import check_times, read_table
 from .sources import find_line
 
 __all__ = ["SignalSpec", "ChannelSpec", "SpectraSpec", "Spectrum", "parse_signals",
@@ -168,6 +168,19 @@ def _choice(raw, key, loc, default):
     return value
 
 
+def _table(raw, text, source, name, keys, expected):
+    """Check that `raw` is a table with only `keys`; returns its location."""
+    loc = where(source, find_line(text, None, name), name)
+    if not isinstance(raw, dict):
+        raise KinfitError(f"{loc}: expected {expected}")
+    unknown = set(raw) - keys
+    if unknown:
+        key = sorted(unknown)[0]
+        raise KinfitError(f"{where(source, find_line(text, key, name))}: unknown key {key!r} "
+                          f"in [{name}]; it has {', '.join(sorted(keys))}")
+    return loc
+
+
 def parse_signals(raw, text, source):
     """Read an experiment's ``[signals]`` table.
 
@@ -189,14 +202,7 @@ def parse_signals(raw, text, source):
     KinfitError
         With the line and what was expected.
     """
-    loc = where(source, find_line(text, None, "signals"), "signals")
-    if not isinstance(raw, dict):
-        raise KinfitError(f"{loc}: expected a table [signals]")
-    unknown = set(raw) - _SIGNAL_KEYS
-    if unknown:
-        key = sorted(unknown)[0]
-        raise KinfitError(f"{where(source, find_line(text, key, 'signals'))}: unknown key "
-                          f"{key!r} in [signals]; it has {', '.join(sorted(_SIGNAL_KEYS))}")
+    loc = _table(raw, text, source, "signals", _SIGNAL_KEYS, "a table [signals]")
     path = parse_path_length(raw.get("path_length", DEFAULT_PATH_CM), f"{loc} (path_length)")
     offset = _choice(raw, "offset", loc, PER_RUN)
     drift = _choice(raw, "drift", loc, NONE)
@@ -244,14 +250,8 @@ def _parse_channels(raw, text, source):
 
 
 def _parse_spectra(raw, text, source):
-    loc = where(source, find_line(text, None, "signals.spectra"), "signals.spectra")
-    if not isinstance(raw, dict):
-        raise KinfitError(f"{loc}: expected a table [signals.spectra] with absorbers = [...]")
-    unknown = set(raw) - _SPECTRA_KEYS
-    if unknown:
-        key = sorted(unknown)[0]
-        raise KinfitError(f"{loc}: unknown key {key!r}; [signals.spectra] has "
-                          f"{', '.join(sorted(_SPECTRA_KEYS))}")
+    loc = _table(raw, text, source, "signals.spectra", _SPECTRA_KEYS,
+                 "a table [signals.spectra] with absorbers = [...]")
     absorbers = raw.get("absorbers")
     if not isinstance(absorbers, list) or not absorbers or not all(
             isinstance(a, str) and a.strip() for a in absorbers):
@@ -381,18 +381,6 @@ def table_times(table, time_unit, run=None, start=None):
         if not rows.size:
             raise KinfitError(f"{shown}: no rows at or after the run's start ({start:g} "
                               f"{time_unit})")
-    lines = table.lines[rows]
-    if times.size and times.min() < 0:
-        i = int(np.flatnonzero(times < 0)[0])
-        raise KinfitError(f"{shown}, line {lines[i]}: negative time {times[i]:g}; times are "
-                          f"measured from the start of the reaction (give the run a start to "
-                          f"leave out readings taken before it)")
-    steps = np.diff(times)
-    if (steps <= 0).any():
-        i = int(np.flatnonzero(steps <= 0)[0]) + 1
-        if steps[i - 1] == 0:
-            raise KinfitError(f"{shown}, line {lines[i]}: time {times[i]:g} is repeated "
-                              f"(also at line {lines[i - 1]})")
-        raise KinfitError(f"{shown}, line {lines[i]}: time is not increasing (t={times[i]:g} "
-                          f"after t={times[i - 1]:g})")
+    check_times(times, table.lines[rows], shown, hint=" (give the run a start to leave out "
+                "readings taken before it)")
     return rows, times
