@@ -31,6 +31,9 @@ import numpy as np
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from bench_fit import POWER_LAW  # noqa: E402  (the power-law case of the fit benchmark)
 
 from kinfit.data import load_experiment  # noqa: E402
 from kinfit.fit import fit  # noqa: E402
@@ -51,17 +54,6 @@ k1 = { value = 0.005, min = 0 }
 k2 = { value = 0.01, min = 0 }
 """
 DYE_TRUTH = {"k1": 0.02, "k2": 0.05}
-
-POWER_LAW = """
-name = "A + B -> P, free orders"
-[[steps]]
-reaction = "A + B -> P"
-rate = "k * [A]^m * [B]^n"
-[parameters]
-k = { value = 0.1, min = 0 }
-m = { value = 1.5, min = 0, max = 3 }
-n = { value = 1.5, min = 0, max = 3 }
-"""
 
 
 def diode_array_case(folder, n_runs=6, n_times=200, n_wavelengths=300, noise=0.002):
