@@ -529,6 +529,13 @@ def format_signals(result, wavelengths=None):
             shown = "0 (held at the bound)" if c.at_bound else format_value(c.value, c.stderr)
             rows.append((c.name, shown, c.unit, c.kind))
         out += _table(rows, ("name", "value ± standard error", "unit", "kind"))
+        strong = [f"{c.name}–{name} {r:+.3f}" for c in sig.coefficients
+                  for name, r in c.correlation.items() if abs(r) >= 0.9]
+        if strong:
+            more = f" and {len(strong) - 6} more (result.json)" if len(strong) > 6 else ""
+            out += textwrap.wrap(f"strong correlations with kinetic parameters: "
+                                 f"{', '.join(strong[:6])}{more}", 88, initial_indent="  ",
+                                 subsequent_indent="    ", break_on_hyphens=False)
     spectra = sig.spectra
     if spectra is not None:
         wl = spectra.wavelengths

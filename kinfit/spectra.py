@@ -524,10 +524,12 @@ class SignalModel:
             if self.reduced and block.wavelengths is not None and not _declared(block):
                 dof = block.values.size - block.n_linear - len(free)
                 s2 = float(np.sum(sol.resid ** 2)) / max(dof, 1)
-            var, cov_blocks = _linear_covariance(block, sol, sens, covariance, s2)
+            var, cross = _linear_covariance(block, sol, sens, covariance, s2)
             warnings += _rank_warnings(block, sol)
             if block.wavelengths is None:
-                coefficients += _coefficients(block, sol, var, self)
+                corr = _correlations(var[0], cross[0], covariance,
+                                     [problem.names[i] for i in free])
+                coefficients += _coefficients(block, sol, var, self, corr)
                 channel_models.update(_channel_models(block, sol, self))
             else:
                 spectra = _resolved(block, sol, var, self, s2)
@@ -615,11 +617,26 @@ def _pinv_or_none(g):
     return np.linalg.inv(scaled) / np.outer(d, d)
 
 
+def _correlations(var, cross, covariance, names):
+    """Correlation of each linear unknown with each kinetic parameter [n_columns] of dicts."""
+    if cross is None or covariance is None:
+        return [{} for _ in var]
+    se_theta = np.sqrt(np.clip(np.diag(covariance), 0.0, None))
+    out = []
+    for v, row in zip(var, cross):
+        if not np.isfinite(v) or v <= 0:
+            out.append({})
+            continue
+        out.append({n: float(c / (math.sqrt(v) * s)) for n, c, s in zip(names, row, se_theta)
+                    if s > 0})
+    return out
+
+
 def _rank_warnings(block, sol):
     """Columns the data cannot tell apart (a near-singular design)."""
-    a = sol.scaled[0][:, ~sol.active[0].any(axis=0)] if sol.active.any() else sol.scaled[0]
-    names = [c.name for c, keep in zip(block.columns, ~sol.active[0].any(axis=0)) if keep] \
-        if sol.active.any() else [c.name for c in block.columns]
+    keep = ~sol.active[0].any(axis=0)
+    a = sol.scaled[0][:, keep]
+    names = [c.name for c, k in zip(block.columns, keep) if k]
     if a.shape[1] == 0:
         return []
     norms = np.linalg.norm(a, axis=0)
@@ -658,6 +675,8 @@ class Coefficient:
     unit : str
     at_bound : bool
         Held at zero by the non-negativity constraint.
+    correlation : dict of str to float
+        Correlation with each fitted kinetic parameter (full Jacobian).
     """
 
     name: str
@@ -669,6 +688,7 @@ class Coefficient:
     stderr: float | None
     unit: str
     at_bound: bool = False
+    correlation: dict = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -823,7 +843,8 @@ class SignalFit:
             "coefficients": {c.name: {"value": c.value, "stderr": c.stderr, "unit": c.unit,
                                       "kind": c.kind, "channel": c.channel,
                                       "species": c.species, "run": c.run,
-                                      "at_bound": c.at_bound} for c in self.coefficients},
+                                      "at_bound": c.at_bound, "correlation": c.correlation}
+                             for c in self.coefficients},
             "spectra": None if self.spectra is None else self.spectra.to_dict(),
             "components": None if self.components is None else self.components.to_dict(),
             "reduced": self.reduced,
@@ -847,7 +868,7 @@ def _units_of(kind, model):
     return signal
 
 
-def _coefficients(block, sol, var, model):
+def _coefficients(block, sol, var, model, correlations):
     out = []
     for j, col in enumerate(block.columns):
         se = var[0, j]
@@ -857,7 +878,8 @@ def _coefficients(block, sol, var, model):
             run=model.run_names[col.run] if col.run >= 0 else None,
             value=float(sol.beta[0, 0, j]),
             stderr=float(math.sqrt(se)) if np.isfinite(se) and se >= 0 else None,
-            unit=_units_of(col.kind, model), at_bound=bool(sol.active[0, 0, j])))
+            unit=_units_of(col.kind, model), at_bound=bool(sol.active[0, 0, j]),
+            correlation=correlations[j]))
     return out
 
 

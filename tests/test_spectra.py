@@ -222,6 +222,11 @@ def test_variable_projection_equals_a_plain_fit_of_all_parameters(tmp_path):
                *[sig.coefficient(f"drift_A300_{r}").stderr for r in AB_RUNS]]
     np.testing.assert_allclose(ours, ref.x, rtol=2e-6, atol=1e-9)
     np.testing.assert_allclose(ours_se, se, rtol=2e-4)
+    # correlation of each absorptivity with k, from the same full covariance
+    cov = np.linalg.inv(ref.jac.T @ ref.jac) * s2
+    corr = cov / np.outer(se, se)
+    assert sig.coefficient("eps_A_A300").correlation["k"] == pytest.approx(corr[1, 0], abs=1e-4)
+    assert sig.coefficient("eps_B_A300").correlation["k"] == pytest.approx(corr[2, 0], abs=1e-4)
     assert result.chi2 == pytest.approx(float(ref.fun @ ref.fun), rel=1e-7)
     assert result.n_free == 7 and result.n_points == 123
     # and the truth the data were made from lies within 3 standard errors
@@ -229,6 +234,46 @@ def test_variable_projection_equals_a_plain_fit_of_all_parameters(tmp_path):
     # units: absorbance per (mM cm), drift per s
     assert sig.coefficient("eps_A_A300").unit == "mM^-1 cm^-1"
     assert sig.coefficient("drift_A300_r1").unit == "s^-1"
+
+
+def test_per_run_absorptivities_and_two_channels(files):
+    # A -> B in two solvents: ε_A at 300 nm differs by run ("per run"), B absorbs
+    # at both wavelengths with one ε each; seeded closed-form data (textbook
+    # first-order law), truth recovered within 3 standard errors.
+    rng = np.random.default_rng(8)
+    t = np.linspace(0, 60, 31)
+    truth = {"eps_A_A300_s1": 0.9, "eps_A_A300_s2": 1.3, "eps_B_A300": 0.2, "eps_B_A400": 0.6}
+    for run, a0 in (("s1", 1.0), ("s2", 0.8)):
+        a, b = closed_form_ab(t, a0, 0.05)
+        y300 = truth[f"eps_A_A300_{run}"] * a + truth["eps_B_A300"] * b
+        y400 = truth["eps_B_A400"] * b
+        noise = rng.normal(0, 0.003, (2, t.size))
+        files(f"{run}.csv", "time,A300,A400\n" + "\n".join(
+            f"{ti:g},{u:.5f},{v:.5f}" for ti, u, v in zip(t, y300 + noise[0], y400 + noise[1])))
+    files("e.toml", """
+        [signals]
+        offset = "none"
+        [signals.channels]
+        A300 = { A = "per run", B = "unknown" }
+        A400 = { B = "unknown" }
+        [[runs]]
+        name = "s1"
+        file = "s1.csv"
+        initial = { A = 1.0 }
+        [[runs]]
+        name = "s2"
+        file = "s2.csv"
+        initial = { A = 0.8 }
+    """)
+    mech = mechanism_from_text('[[steps]]\nreaction = "A -> B"\nrate = "k * [A]"\n'
+                               '[parameters]\nk = 0.02\n')
+    result = fit(load_experiment(files.folder / "e.toml"), mech, starts=1)
+    assert abs(result.values["k"] - 0.05) < 3 * result.stderr["k"]
+    assert {c.name for c in result.signals.coefficients} == set(truth)
+    for name, true in truth.items():
+        c = result.signals.coefficient(name)
+        assert abs(c.value - true) < 3 * c.stderr, name
+    assert result.signals.coefficient("eps_A_A300_s2").run == "s2"
 
 
 def test_projected_jacobian_matches_finite_differences(tmp_path):
