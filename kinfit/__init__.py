@@ -10,6 +10,7 @@ The public names are re-exported here and imported on first use, so that
     print(result.values, result.stderr)
 """
 
+import sys
 from importlib import import_module
 
 __version__ = "0.1.0"
@@ -22,6 +23,7 @@ _EXPORTS = {
     "Parameter": "mechanism",
     "load_mechanism": "mechanism",
     "mechanism_from_text": "mechanism",
+    "with_fixed": "mechanism",
     "Experiment": "data",
     "Run": "data",
     "Trace": "data",
@@ -32,11 +34,23 @@ _EXPORTS = {
     "log_likelihood": "objective",
     "fit": "fit",
     "FitResult": "fit",
+    "rank": "compare",
+    "compare": "compare",
+    "Comparison": "compare",
+    "Candidate": "compare",
+    "order_lattice": "compare",
+    "InitialRates": "initial_rates",
+    "regress_orders": "initial_rates",
+    "initial_rates": "initial_rates",
     "format_fit": "report",
     "write_fit": "report",
+    "format_ranking": "report",
+    "write_ranking": "report",
     "plot_traces": "plots",
     "plot_residuals": "plots",
     "plot_trajectory": "plots",
+    "plot_weights": "plots",
+    "plot_initial_rates": "plots",
     "plot_arrhenius": "plots",
     "plot_eyring": "plots",
     "plot_prediction": "plots",
@@ -74,3 +88,23 @@ def __getattr__(name):
 
 def __dir__():
     return __all__
+
+
+class _Package(type(sys.modules[__name__])):
+    """The package module, keeping exported functions ahead of same-named submodules.
+
+    Importing a submodule binds it as an attribute of its package, so once
+    ``kinfit.fit`` (the module) is imported, ``kinfit.fit`` would name the
+    module rather than the function. Binding such a submodule is skipped here;
+    the submodule stays importable through ``sys.modules`` and
+    ``from kinfit.fit import ...``.
+    """
+
+    def __setattr__(self, name, value):
+        if (name in _EXPORTS and isinstance(value, type(sys))
+                and value.__name__ == f"{__name__}.{name}"):
+            return
+        super().__setattr__(name, value)
+
+
+sys.modules[__name__].__class__ = _Package

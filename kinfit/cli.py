@@ -8,6 +8,7 @@ libraries are imported inside the commands so that ``kinfit --help`` is fast.
 
 from __future__ import annotations
 
+import sys
 import warnings
 from contextlib import contextmanager
 from pathlib import Path
@@ -83,6 +84,8 @@ def fit_command(
         None, "--wavelengths",
         help="For full spectra: wavelengths to show fitted against measured traces at, "
              "comma-separated (default: the peak of each resolved spectrum)."),
+    report: bool = typer.Option(True, "--report/--no-report",
+                                help="Also write the self-contained report.html."),
 ):
     """Fit a model to every run of an experiment at once.
 
@@ -132,7 +135,10 @@ def fit_command(
             more, text = signal_outputs(result, picks)
             files = {**files, **more}
             summary = text if summary is None else f"{text}\n\n{summary}"
-        written = write_fit(out, result, extra_files=files, extra_summary=summary)
+        written = write_fit(out, result, extra_files=files, extra_summary=summary,
+                            provenance=_provenance(exp, mech, seed, {"starts": starts}))
+        if report:
+            written.append(_report(out))
         typer.echo(format_fit(result))
         if summary:
             typer.echo("\n" + summary)
@@ -162,6 +168,19 @@ def _numbers(text, option):
     except ValueError:
         raise KinfitError(f"{option} {text}: expected numbers separated by commas, like "
                           f"420,560") from None
+
+
+def _provenance(exp, mech, seed, settings):
+    from .provenance import collect, experiment_inputs
+
+    return collect(experiment_inputs(exp, mech), seed=seed, settings=settings,
+                   command=["kinfit"] + sys.argv[1:])
+
+
+def _report(out):
+    from .html_report import build_report
+
+    return build_report(out)
 
 
 def _temperature_outputs(exp, mech, result, two_stage, seed):
@@ -347,8 +366,10 @@ def demo_command(
 
         typer.echo(textwrap.fill(demo.SCENARIO, 88) + "\n")
         paths = demo.write_inputs(out / "inputs")
-        result = fit(load_experiment(paths["experiment"]), load_mechanism(paths["model"]))
-        written = write_fit(out, result)
+        exp, mech = load_experiment(paths["experiment"]), load_mechanism(paths["model"])
+        result = fit(exp, mech)
+        written = write_fit(out, result, provenance=_provenance(exp, mech, 0, {"starts": 8}))
+        written.append(_report(out))
         typer.echo(format_fit(result))
         typer.echo("\nRecovered against the true values used to make the data")
         for name, true, value, se, z in demo.compare_with_truth(result):
@@ -374,9 +395,13 @@ def _spectrometer_demo(out):
     mech = load_mechanism(paths["model"])
     fits = {}
     for key in ("absorbance", "spectra"):
-        result = fit(load_experiment(paths[key]), mech)
+        exp = load_experiment(paths[key])
+        result = fit(exp, mech)
         files, summary = signal_outputs(result)
-        write_fit(out / "spectrometer" / key, result, extra_files=files, extra_summary=summary)
+        folder = out / "spectrometer" / key
+        write_fit(folder, result, extra_files=files, extra_summary=summary,
+                  provenance=_provenance(exp, mech, 0, {"starts": 8}))
+        _report(folder)
         fits[key] = result
         typer.echo(format_fit(result, cautions=False))
         typer.echo(summary + "\n")
@@ -385,9 +410,128 @@ def _spectrometer_demo(out):
                                                                     fits["spectra"]):
         typer.echo(f"  {name:<24} true {true:<8.4g} fitted {format_value(value, se):<22} "
                    f"({z:+.1f} standard errors)")
-    typer.echo(f"\nInputs in {out / 'inputs' / 'spectrometer'}; results (with spectra.csv, "
-               f"spectra.png, wavelength_traces.png, residual_map.png, components.png) in "
-               f"{out / 'spectrometer'}")
+    typer.echo(f"\nInputs in {out / 'inputs' / 'spectrometer'}; results (with report.html, "
+               f"spectra.csv, spectra.png, wavelength_traces.png, residual_map.png, "
+               f"components.png) in {out / 'spectrometer'}")
+
+
+@app.command("rank")
+def rank_command(
+    experiment: Path = typer.Argument(..., help="Experiment file (TOML)."),
+    model: List[Path] = typer.Option(..., "--model", "-m",
+                                     help="Candidate model file (TOML); repeat for each."),
+    orders: Optional[List[str]] = typer.Option(
+        None, "--orders",
+        help="Order search NAME=V1,V2,...; repeat. Fixes these order parameters of the "
+             "first model that has them to every combination of the values; that model's "
+             "free-order fit is ranked alongside."),
+    out: Path = typer.Option(Path("kinfit-rank"), "--out", "-o",
+                             help="Folder for ranking.json, ranking.txt and figures."),
+    starts: int = typer.Option(8, "--starts", min=1,
+                               help="Starting points for each model given."),
+    lattice_starts: int = typer.Option(1, "--lattice-starts", min=1,
+                                       help="Starting points for each fixed-order candidate "
+                                            "(they start from the free-order fit)."),
+    criterion: str = typer.Option("aicc", "--criterion",
+                                  help="Sort by aicc, aic or bic."),
+    workers: Optional[int] = typer.Option(None, "--workers", min=1,
+                                          help="Processes for the fits (default: all CPUs)."),
+    initial_rates: bool = typer.Option(True, "--initial-rates/--no-initial-rates",
+                                       help="Run the initial-rates cross-check."),
+    conversion: float = typer.Option(0.2, "--conversion",
+                                     help="Initial-rates window: fraction of the limiting "
+                                          "reactant used up."),
+    top: int = typer.Option(10, "--top", min=1, help="Candidates shown in the table."),
+    seed: int = typer.Option(0, "--seed", help="Seed of the start screens."),
+    report: bool = typer.Option(True, "--report/--no-report",
+                                help="Also write the self-contained report.html."),
+):
+    """Fit several candidate rate laws to every run and rank them.
+
+    Ranks by AICc (Akaike and BIC weights), tests nested pairs (F-test,
+    likelihood ratio), averages shared parameters over the candidates, and
+    sets the initial-rates method beside the best one-step rate law. Writes
+    ranking.json, ranking.txt, weights.png, initial_rates.png/.csv,
+    provenance.json, report.html and the best candidate's fit (best/) into --out.
+
+    Example:
+
+      kinfit rank demo/experiment.toml --model demo/thiol_addition.toml
+      --orders m_thiol=0,0.5,1,1.5,2 --orders m_acrylate=0,0.5,1,1.5,2 --out ranking
+    """
+    with _handled():
+        from .compare import parse_order_grid, rank
+        from .data import load_experiment
+        from .mechanism import load_mechanism
+        from .report import format_ranking, write_ranking
+
+        grid = parse_order_grid(orders)
+        if not 0 < conversion <= 1:
+            raise KinfitError(f"--conversion {conversion}: expected a fraction in (0, 1]")
+        exp = load_experiment(experiment)
+        mechanisms = [load_mechanism(m) for m in model]
+        bar = _ProgressBar("fitting candidates") if sys.stderr.isatty() else None
+        try:
+            comparison = rank(exp, mechanisms, grid, starts=starts, lattice_starts=lattice_starts,
+                              seed=seed, workers=workers, criterion=criterion.lower(),
+                              cross_check=initial_rates, max_conversion=conversion,
+                              progress=bar)
+        finally:
+            if bar is not None:
+                bar.close()
+        from .provenance import collect, experiment_inputs
+
+        inputs = experiment_inputs(exp)
+        inputs.update({f"model {i}": m.source for i, m in enumerate(mechanisms, start=1)})
+        provenance = collect(inputs, seed=seed, command=["kinfit"] + sys.argv[1:],
+                             settings={"starts": starts, "lattice_starts": lattice_starts,
+                                       "orders": {k: list(v) for k, v in grid.items()},
+                                       "criterion": criterion.lower(),
+                                       "max_conversion": conversion})
+        written = write_ranking(out, comparison, top=top, provenance=provenance)
+        if report:
+            written.append(_report(out))
+        typer.echo(format_ranking(comparison, top=top))
+        typer.echo(f"\nWrote {', '.join(p.name for p in written if p.parent == out)} and "
+                   f"best/ in {out}")
+
+
+class _ProgressBar:
+    """A progress bar on stderr, created on the first report (the total is known then)."""
+
+    def __init__(self, label):
+        self.label, self.bar = label, None
+
+    def __call__(self, done, total, name):
+        if self.bar is None:
+            self.bar = typer.progressbar(length=total, label=self.label, show_pos=True,
+                                         file=sys.stderr)
+            self.bar.__enter__()
+        self.bar.update(1)
+
+    def close(self):
+        if self.bar is not None:
+            self.bar.__exit__(None, None, None)
+
+
+@app.command("report")
+def report_command(
+    folder: Path = typer.Argument(..., help="An output folder of kinfit fit, sample or rank."),
+):
+    """Build one self-contained report.html from the results in a folder.
+
+    The report holds every section whose results the folder has: the rate law,
+    parameters with their intervals, each run's fit and residual checks,
+    posteriors, ranking, temperature analysis, warnings, cautions and
+    provenance, with figures embedded so that it opens anywhere offline.
+
+    Example:
+
+      kinfit report kinfit-demo
+    """
+    with _handled():
+        path = _report(folder)
+        typer.echo(f"Wrote {path}")
 
 
 def main():

@@ -32,8 +32,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import KinfitError, where
-from .instrument import check_times, read_table
+from .errors import KinfitError, KinfitWarning, where
+from .instrument import MAX_MAGNITUDE, check_times, read_table
 from .mechanism import Parameter
 from .signals import parse_path_length, parse_signals, read_spectrum, table_times
 from .sources import decode, find_line, load_toml, resolve_file
@@ -45,6 +45,7 @@ __all__ = ["Trace", "Run", "Noise", "Experiment", "load_experiment", "initial_na
 ROLE_INITIAL = "initial concentration"
 ROLE_TIME_OFFSET = "time offset"
 MIN_POINTS = 3
+NEGATIVE_NOISE = 0.05   # a reading below -5 % of its trace's largest is not noise around 0
 
 _EXPERIMENT_KEYS = {"name", "description", "units", "data", "noise", "runs", "temperature",
                     "signals"}
@@ -337,6 +338,18 @@ def load_experiment(path):
     return Experiment(**{**experiment.__dict__, "noise": noise})
 
 
+def _warn_negative(trace, shown):
+    """Warn (once per trace) about readings clearly below zero."""
+    scale = float(np.max(np.abs(trace.values))) if trace.values.size else 0.0
+    bad = np.flatnonzero(trace.values < -NEGATIVE_NOISE * scale)
+    if bad.size:
+        i = int(bad[0])
+        warnings.warn(f"{shown}, line {trace.lines[i]}: {trace.species} = {trace.values[i]:g} is "
+                      f"negative beyond plausible noise around zero ({bad.size} reading(s) in "
+                      f"this trace); check the sign, the baseline or the units",
+                      KinfitWarning, stacklevel=3)
+
+
 def _parse_run(index, raw, text, source, units, default_temperature):
     loc = where(source, find_line(text, None, "runs", index), f"runs[{index + 1}]")
     unknown = set(raw) - _RUN_KEYS
@@ -547,6 +560,11 @@ def _numbers(column, lines, shown, label, allow_blank=False):
         i = int(np.flatnonzero(inf)[0])
         raise KinfitError(f"{shown}, line {lines[i]}: {label} {stripped.iloc[i]!r} is not a "
                           f"finite number")
+    huge = np.abs(np.where(blank, 0.0, values)) > MAX_MAGNITUDE
+    if huge.any():
+        i = int(np.flatnonzero(huge)[0])
+        raise KinfitError(f"{shown}, line {lines[i]}: {label} {values[i]:g} is implausibly large "
+                          f"(beyond ±{MAX_MAGNITUDE:g}); is a unit or an exponent wrong?")
     if blank.any() and not allow_blank:
         i = int(np.flatnonzero(blank)[0])
         raise KinfitError(f"{shown}, line {lines[i]}: {label} is missing")
@@ -557,7 +575,81 @@ def _check_times(times, lines, shown, what):
     check_times(times, lines, shown, what)
 
 
+def _fast_long(path):
+    """The long table read by pandas' numeric parser, or None when anything is unusual.
+
+    Clean files (no blank lines, no quotes, numbers everywhere they belong) are
+    read in one pass; anything else goes through the careful reader, which
+    finds the exact line of every problem.
+    """
+    import pandas as pd
+
+    try:
+        text = Path(path).read_bytes().decode("utf-8")
+    except UnicodeDecodeError:
+        return None
+    if "\r" in text or '"' in text or "\n\n" in text.strip("\n") or text.startswith("\ufeff"):
+        return None
+    header = [c.strip() for c in text.split("\n", 1)[0].split(",")]
+    body = text.strip("\n")
+    if body.count(",") != (body.count("\n") + 1) * (len(header) - 1):
+        return None                   # some row has more or fewer fields than the header
+    lower = {c.lower(): c for c in header}
+    if len(set(header)) != len(header) or any(c not in lower for c in _LONG_COLUMNS):
+        return None
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("error")
+            frame = pd.read_csv(io.StringIO(text), usecols=[lower[c] for c in _LONG_COLUMNS],
+                                dtype={lower["run"]: str, lower["species"]: str,
+                                       lower["time"]: float, lower["value"]: float},
+                                na_filter=False, skipinitialspace=True, index_col=False)
+    except (ValueError, pd.errors.ParserError, pd.errors.ParserWarning):
+        return None
+    times = frame[lower["time"]].to_numpy(dtype=float)
+    values = frame[lower["value"]].to_numpy(dtype=float)
+    if not (np.isfinite(times).all() and np.isfinite(values).all()) or not len(frame):
+        return None
+    if np.abs(times).max() > MAX_MAGNITUDE or np.abs(values).max() > MAX_MAGNITUDE:
+        return None
+    runs = frame[lower["run"]].str.strip().to_numpy()
+    species = frame[lower["species"]].str.strip().to_numpy()
+    if (runs == "").any() or (species == "").any():
+        return None
+    return runs, times, species, values, np.arange(2, len(frame) + 2)
+
+
 def _read_long(path, shown, listed, own_file, starts=None):
+    fast = _fast_long(path)
+    if fast is not None:
+        runs, times, species, values, lines = fast
+    else:
+        runs, times, species, values, lines = _careful_long(path, shown)
+    out = {}
+    for run in dict.fromkeys(runs):
+        rows = np.flatnonzero(runs == run)
+        if run not in listed:
+            raise KinfitError(f"{shown}, line {lines[rows[0]]}: run {run!r} is not listed in "
+                              f"the experiment file; add a [[runs]] entry for it or remove "
+                              f"its rows")
+        if run in own_file:
+            raise KinfitError(f"{shown}, line {lines[rows[0]]}: run {run!r} has its own data "
+                              f"file too; give each run's data once")
+        traces = []
+        start = (starts or {}).get(run)
+        if start is not None:
+            rows = rows[times[rows] >= start]
+        for sp in dict.fromkeys(species[rows]):
+            sel = rows[species[rows] == sp]
+            _check_times(times[sel], lines[sel], shown, f"run {run!r}, {sp}")
+            traces.append(Trace(sp, times[sel], values[sel], lines[sel]))
+            _warn_negative(traces[-1], shown)
+        out[run] = traces
+    return out
+
+
+def _careful_long(path, shown):
+    """Read the long table cell by cell, naming the line of any problem."""
     frame = _read_csv(path, shown)
     lower = {c.lower(): c for c in frame.columns}
     missing = [c for c in _LONG_COLUMNS if c not in lower]
@@ -581,26 +673,7 @@ def _read_long(path, shown, listed, own_file, starts=None):
         if empty.size:
             raise KinfitError(f"{shown}, line {lines[empty[0]]}: the {label} is missing")
 
-    out = {}
-    for run in dict.fromkeys(runs):
-        rows = np.flatnonzero(runs == run)
-        if run not in listed:
-            raise KinfitError(f"{shown}, line {lines[rows[0]]}: run {run!r} is not listed in "
-                              f"the experiment file; add a [[runs]] entry for it or remove "
-                              f"its rows")
-        if run in own_file:
-            raise KinfitError(f"{shown}, line {lines[rows[0]]}: run {run!r} has its own data "
-                              f"file too; give each run's data once")
-        traces = []
-        start = (starts or {}).get(run)
-        if start is not None:
-            rows = rows[times[rows] >= start]
-        for sp in dict.fromkeys(species[rows]):
-            sel = rows[species[rows] == sp]
-            _check_times(times[sel], lines[sel], shown, f"run {run!r}, {sp}")
-            traces.append(Trace(sp, times[sel], values[sel], lines[sel]))
-        out[run] = traces
-    return out
+    return runs, times, species, values, lines
 
 
 def _read_wide(path, shown, units, channels=(), run=None, start=None):
@@ -631,4 +704,5 @@ def _read_wide(path, shown, units, channels=(), run=None, start=None):
         keep = ~blank
         if keep.any():
             traces.append(Trace(name, times[keep], values[keep], lines[keep]))
+            _warn_negative(traces[-1], shown)
     return traces

@@ -35,6 +35,7 @@ import numpy as np
 from .data import ROLE_INITIAL, ROLE_TIME_OFFSET
 from .errors import KinfitError
 from .mechanism import ROLE_ORDER, ROLE_RATE_CONSTANT, format_rate_law
+from .misfit import check_residuals
 from .objective import FAILED_RESIDUAL, build_problem, information_criteria
 from .simulate import Trajectory
 from .temperature import ENERGY_UNIT, ROLE_ACTIVATION_ENERGY, ROLE_ACTIVATION_ENTHALPY
@@ -229,6 +230,7 @@ class FitResult:
                     "failed_evaluations": self.n_failed, "integrator": self.method},
             "warnings": list(self.warnings),
             "signals": None if self.signals is None else self.signals.to_dict(),
+            "residual_checks": [c.to_dict() for c in check_residuals(self)],
         }
 
 
@@ -394,7 +396,13 @@ def _start_points(evaluator, layout, starts, seed):
     # All candidates in one call, with a small work bound and no hand-over to
     # the implicit integrator: a candidate whose equations are very hard to
     # integrate is a poor start and is dropped cheaply.
-    chi2 = np.sum(evaluator.residuals(cand, max_rhs=_SCREEN_RHS, fallback=False) ** 2, axis=1)
+    # (in chunks small enough that the model values of a chunk stay well under
+    # ~50 MB, so that a million-point data set does not multiply its memory)
+    size = evaluator.problem.observation.n_points * evaluator.problem.mechanism.n_species
+    per_call = int(max(1, min(n_screen, 6_000_000 // max(size, 1))))
+    chi2 = np.concatenate([
+        np.sum(evaluator.residuals(chunk, max_rhs=_SCREEN_RHS, fallback=False) ** 2, axis=1)
+        for chunk in np.array_split(cand, math.ceil(n_screen / per_call))])
     order = np.argsort(chi2)
     points.extend(cand[i] for i in order[:starts - 1])
     return points

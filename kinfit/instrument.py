@@ -36,7 +36,9 @@ from .errors import KinfitError
 from .sources import decode
 
 __all__ = ["Table", "read_table", "table_from_text", "split_unit", "check_times",
-           "SEPARATORS"]
+           "SEPARATORS", "MAX_MAGNITUDE"]
+
+MAX_MAGNITUDE = 1e100   # larger times or values are typing errors, not measurements
 
 SEPARATORS = {",": "comma", ";": "semicolon", "\t": "tab"}
 _NUMBER_DOT = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
@@ -140,10 +142,14 @@ def _to_floats(cells, lines, decimal, shown, label, allow_blank):
             continue
         if pattern.match(cell):
             values[i] = float(cell.replace(",", ".")) if decimal == "," else float(cell)
-            if np.isfinite(values[i]):
-                continue
-            raise KinfitError(f"{shown}, line {lines[i]}: {label} {cell!r} is not a finite "
-                              f"number")
+            if not np.isfinite(values[i]):
+                raise KinfitError(f"{shown}, line {lines[i]}: {label} {cell!r} is not a finite "
+                                  f"number")
+            if abs(values[i]) > MAX_MAGNITUDE:
+                raise KinfitError(f"{shown}, line {lines[i]}: {label} {values[i]:g} is "
+                                  f"implausibly large (beyond ±{MAX_MAGNITUDE:g}); is a unit or "
+                                  f"an exponent wrong?")
+            continue
         if cell.lower() in _NOT_NUMBERS:
             raise KinfitError(f"{shown}, line {lines[i]}: {label} is {cell!r}; expected a "
                               f"number (leave the cell empty if nothing was measured)")

@@ -25,7 +25,7 @@ from __future__ import annotations
 import keyword
 import math
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -37,7 +37,7 @@ from .sources import find_line, load_toml
 from .temperature import check_roles, parse_temperature
 
 __all__ = ["Parameter", "Step", "Mechanism", "load_mechanism", "mechanism_from_text",
-           "rates", "rhs", "jacobian", "format_rate_law"]
+           "rates", "rhs", "jacobian", "format_rate_law", "with_fixed", "with_start"]
 
 ROLE_RATE_CONSTANT = "rate constant"
 ROLE_ORDER = "order"
@@ -198,6 +198,77 @@ class Mechanism:
             out[law.constant] = order if previous is not None and math.isclose(
                 previous, order, abs_tol=1e-9) else None
         return out
+
+
+def with_fixed(mechanism, values, name=None):
+    """A copy of `mechanism` with the named parameters fixed at the given values.
+
+    Used to build candidates such as "the free-order model with m fixed at 1".
+    The compiled arrays are kept: fixing a parameter changes its value and
+    ``vary`` flag, not the layout.
+
+    Parameters
+    ----------
+    mechanism : Mechanism
+    values : mapping of str to float
+        Parameter name -> fixed value; each value must lie within the
+        parameter's bounds.
+    name : str, optional
+        Name of the new mechanism (default: the same name).
+
+    Returns
+    -------
+    Mechanism
+
+    Raises
+    ------
+    KinfitError
+        For an unknown parameter name or a value outside the bounds.
+    """
+    params = dict(mechanism.parameters)
+    for pname, value in values.items():
+        p = _parameter(mechanism, pname)
+        value = float(value)
+        if not math.isfinite(value) or not p.min <= value <= p.max:
+            raise KinfitError(f"{mechanism.source}: cannot fix {pname} at {value:g}; the model "
+                              f"allows {pname} from {p.min:g} to {p.max:g}")
+        params[pname] = replace(p, value=value, vary=False)
+    return replace(mechanism, parameters=params, name=name or mechanism.name)
+
+
+def with_start(mechanism, values):
+    """A copy of `mechanism` whose fitted parameters start from `values`.
+
+    Values are clipped into each parameter's bounds (and kept positive for a
+    fitted rate constant, which is fitted on a log scale); fixed parameters
+    and names not in `values` are left as they are.
+
+    Parameters
+    ----------
+    mechanism : Mechanism
+    values : mapping of str to float
+
+    Returns
+    -------
+    Mechanism
+    """
+    params = dict(mechanism.parameters)
+    for pname, value in values.items():
+        p = _parameter(mechanism, pname)
+        if not p.vary or not math.isfinite(value):
+            continue
+        value = min(max(float(value), p.min), p.max)
+        if p.role == ROLE_RATE_CONSTANT and value <= 0:
+            value = p.value
+        params[pname] = replace(p, value=value)
+    return replace(mechanism, parameters=params)
+
+
+def _parameter(mechanism, pname):
+    if pname not in mechanism.parameters:
+        raise KinfitError(f"{mechanism.source}: no parameter named {pname!r}; the model has "
+                          f"{', '.join(mechanism.parameters) or 'none'}")
+    return mechanism.parameters[pname]
 
 
 def format_rate_law(law, values=None, digits=3):
@@ -427,7 +498,7 @@ def _parse_step(index, raw, text, source):
     try:
         reaction = parse_reaction(raw["reaction"])
     except ParseError as exc:
-        fail("reaction", f"{exc} in {raw['reaction']!r}")
+        fail("reaction", f"{exc} in {_clip(raw['reaction'])}")
     label = raw.get("label", label)
     if not isinstance(label, str):
         fail("label", "expected text")
@@ -439,7 +510,7 @@ def _parse_step(index, raw, text, source):
         try:
             return to_power_law(value)
         except ParseError as exc:
-            fail(key, f"{exc}; got {value!r}")
+            fail(key, f"{exc}; got {_clip(value)}")
 
     if "rate" not in raw:
         fail("rate", "missing; every step needs a rate law, like rate = \"k * [A]\"")
@@ -453,6 +524,12 @@ def _parse_step(index, raw, text, source):
     elif "reverse_rate" in raw:
         fail("reverse_rate", "only a reversible step (written with <=>) has a reverse rate")
     return Step(reaction, forward, reverse, label, line)
+
+
+def _clip(text, limit=80):
+    """Quote `text` for a message, shortened to `limit` characters."""
+    text = repr(text)
+    return text if len(text) <= limit else text[:limit - 5] + "…" + text[-4:]
 
 
 def _parse_parameters(raw, steps, text, source, temperature=None):

@@ -19,8 +19,8 @@ from .errors import KinfitError
 
 __all__ = ["CAUTIONS", "format_value", "format_fit", "write_fit", "write_simulation",
            "figure_bytes", "temperature_cautions", "format_activation", "temperature_outputs",
-           "format_prediction", "write_prediction", "format_signals", "signal_outputs",
-           "format_components"]
+           "format_prediction", "write_prediction", "format_ranking", "format_cross_check",
+           "write_ranking", "format_signals", "signal_outputs", "format_components"]
 
 CAUTIONS = (
     "A rate law and its rate constants hold only over the conditions they were measured "
@@ -151,7 +151,7 @@ def _prepare(out_dir):
     return out_dir
 
 
-def write_fit(out_dir, result, extra_files=None, extra_summary=None):
+def write_fit(out_dir, result, extra_files=None, extra_summary=None, provenance=None):
     """Write a fit's outputs into `out_dir`.
 
     Files: ``result.json`` (see :meth:`FitResult.to_dict`), ``summary.txt``,
@@ -167,6 +167,8 @@ def write_fit(out_dir, result, extra_files=None, extra_summary=None):
         :func:`temperature_outputs`.
     extra_summary : str, optional
         Text appended to ``summary.txt``.
+    provenance : dict, optional
+        Written as ``provenance.json`` (see :func:`kinfit.provenance.collect`).
 
     Returns
     -------
@@ -184,6 +186,11 @@ def write_fit(out_dir, result, extra_files=None, extra_summary=None):
         summary += "\n\n" + extra_summary
     payload.update({name: blob.encode("utf-8") if isinstance(blob, str) else blob
                     for name, blob in (extra_files or {}).items()})
+    if provenance is not None:
+        import json
+
+        payload["provenance.json"] = (json.dumps(provenance, indent=2, ensure_ascii=False)
+                                      + "\n").encode("utf-8")
     curves = _curves_csv(result)
     data = result.to_dict()
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -590,7 +597,9 @@ def signal_outputs(result, wavelengths=None):
     Returns
     -------
     files : dict of str to bytes or str
-        With full spectra: ``spectra.csv`` (wavelength, each species' ε and
+        ``spectra.json`` (:meth:`SignalFit.to_dict` without the warnings,
+        which ``result.json`` holds; read by the HTML report). With full
+        spectra also ``spectra.csv`` (wavelength, each species' ε and
         its standard error, baselines), ``spectra.png``/``.svg``,
         ``wavelength_traces.png``/``.svg`` (data and fit at chosen
         wavelengths), ``residual_map.png`` and ``residual_map_<run>.csv``
@@ -603,8 +612,12 @@ def signal_outputs(result, wavelengths=None):
     from .plots import plot_components, plot_residual_map, plot_spectra, plot_wavelength_traces
     from .spectra import choose_wavelengths
 
+    import json
+
     sig = result.signals
-    files = {}
+    data = sig.to_dict()
+    data.pop("warnings")          # already in result.json, with the fit's other warnings
+    files = {"spectra.json": json.dumps(_plain(data), indent=2, ensure_ascii=False) + "\n"}
     spectra = sig.spectra
     if spectra is not None:
         files["spectra.csv"] = _spectra_csv(spectra)
@@ -625,3 +638,202 @@ def signal_outputs(result, wavelengths=None):
         n_abs = len(spectra.species) if spectra is not None else None
         files["components.png"] = figure_bytes(plot_components(sig.components, n_abs))
     return files, format_signals(result, wavelengths)
+# ------------------------------------------------------------------ ranking
+
+def _number(value, fmt=".2f"):
+    return "—" if value is None or not math.isfinite(value) else format(value, fmt)
+
+
+def _short(text, width=48):
+    return text if len(text) <= width else text[:width - 1] + "…"
+
+
+def format_ranking(comparison, top=10, cautions=True):
+    """Readable summary of a :class:`~kinfit.compare.Comparison` for the terminal.
+
+    Shows the ranked table (the first `top` rows), the verdict, the nested
+    tests that involve the leading candidates, model-averaged parameters, the
+    initial-rates cross-check, warnings, the evidence scales' sources and (by
+    default) the cautions.
+    """
+    rows = comparison.candidates
+    best = rows[0]
+    exp = best.fit.experiment
+    crit = {"aicc": "AICc", "aic": "AIC", "bic": "BIC"}[comparison.criterion]
+    noise = "declared noise" if comparison.noise_declared else "noise estimated"
+    out = [f"Ranking of {len(rows)} candidates fitted to '{exp.name}' "
+           f"({comparison.n_points} points, {noise}), sorted by {crit}", ""]
+    table = []
+    for i, r in enumerate(rows[:top], start=1):
+        table.append((str(i), _short(r.label), str(r.n_params), f"{r.chisqr:.6g}",
+                      _number(r.delta_aicc), f"{r.akaike_weight:.3f}", _number(r.delta_bic),
+                      f"{r.bic_weight:.3f}", r.evidence_aicc))
+    out += _table(table, ("#", "candidate", "p", "χ²", "ΔAICc", "weight", "ΔBIC",
+                          "BIC weight", "support (ΔAICc)"))
+    if len(rows) > top:
+        out.append(f"  ... {len(rows) - top} more in ranking.json")
+    templates = sorted({r.template for r in rows if r.template})
+    for t in templates:
+        out.append(f"  Rows such as 'm=1' are '{t}' with those orders fixed.")
+    out.append("  weight: Akaike weight from AICc; BIC weight: from BIC (each sums to 1).")
+
+    out += ["", "Verdict"]
+    for line in comparison.verdict:
+        out += textwrap.wrap(line, 88, initial_indent="  - ", subsequent_indent="    ",
+                             break_on_hyphens=False)
+    # pairs that say whether a simpler candidate will do: a leading candidate
+    # against what contains it, and what the best contains
+    leading = {r.name for r in rows[:3]}
+    shown = [t for t in comparison.nested if t.smaller in leading or t.larger == best.name]
+    if shown:
+        out += ["", "Nested pairs (smaller = larger with parameters fixed): F-test and "
+                    "likelihood ratio"]
+        nested_rows = [(_short(_label(comparison, t.smaller), 30),
+                        _short(_label(comparison, t.larger), 30), str(t.extra_params),
+                        f"{t.f_statistic:.4g}", f"{t.f_pvalue:.3g}", f"{t.lr_statistic:.4g}",
+                        f"{t.lr_pvalue:.3g}", "yes" if t.on_boundary else "")
+                       for t in shown[:8]]
+        out += _table(nested_rows, ("smaller", "larger", "extra", "F", "p (F)", "LR",
+                                    "p (LR)", "on a bound"))
+        if len(shown) > 8:
+            out.append(f"  ... {len(shown) - 8} more in ranking.json")
+        if any(t.on_boundary for t in shown[:8]):
+            out.append("  on a bound: the smaller model fixes a value on a bound of the "
+                       "larger one, so the p-values are conservative (too large)")
+    if comparison.averages:
+        out += ["", "Model-averaged parameters (Akaike weights; unconditional standard "
+                    "error)"]
+        out += _table([(a.name, format_value(a.value, a.stderr), a.unit, f"{a.weight:.3f}",
+                        str(a.n_candidates)) for a in comparison.averages],
+                      ("name", "value ± standard error", "unit", "weight covered",
+                       "candidates"))
+    if comparison.cross_check is not None:
+        out += [""] + format_cross_check(comparison.cross_check)
+    if comparison.warnings:
+        out += ["", "Warnings"]
+        for w in comparison.warnings:
+            out += textwrap.wrap(w, 88, initial_indent="  - ", subsequent_indent="    ",
+                                 break_on_hyphens=False)
+    from .compare import SOURCES
+
+    out += ["", "Evidence scales"]
+    for key in ("aicc", "bic"):
+        out += textwrap.wrap(SOURCES[key], 88, initial_indent="  - ",
+                             subsequent_indent="    ", break_on_hyphens=False)
+    if cautions:
+        out += ["", "Caution"] + textwrap.wrap(
+            "A ranking says which candidates these data support, not that the best is the "
+            "true mechanism; a model not among the candidates may be better still. "
+            + CAUTIONS, 88, initial_indent="  ", subsequent_indent="  ",
+            break_on_hyphens=False)
+    return "\n".join(out)
+
+
+def _label(comparison, name):
+    for r in comparison.candidates:
+        if r.name == name:
+            return r.label
+    return name
+
+
+def format_cross_check(check):
+    """Lines describing the initial-rates cross-check."""
+    ir = check.initial_rates
+    out = [f"Initial-rates cross-check ({ir.reaction}; slope at t = 0 of a degree-{ir.degree} "
+           f"polynomial over the first {100 * ir.max_conversion:.0f} % conversion)"]
+    species = []
+    for r in ir.rates:
+        for s in r.conc0:
+            if s not in species:
+                species.append(s)
+    rows = []
+    for r in ir.rates:
+        rate = format_value(r.rate, r.stderr) if r.rate is not None else "—"
+        points = ", ".join(f"{t.species} {t.n_points}" for t in r.traces)
+        rows.append((r.run, *[f"{r.conc0.get(s, 0):g}" for s in species], rate, points))
+    out += _table(rows, ("run", *[f"[{s}]0" for s in species],
+                         f"r0 ({ir.rate_unit})", "points used"))
+    reg = ir.regression
+    if reg is not None:
+        out += ["", f"  Orders, beside the time-course fit of '{check.candidate}'"]
+        order_rows = []
+        for c in check.orders:
+            diff = "—" if c.z is None else f"{abs(c.z):.1f} se " + (
+                "(agree)" if c.agrees else "(DISAGREE)")
+            fitted = format_value(c.time_course, c.time_course_stderr or None) + (
+                " (fixed)" if c.time_course_stderr == 0 else "")
+            order_rows.append((c.species, format_value(c.initial_rates, c.initial_rates_stderr),
+                               fitted, diff))
+        out += _table(order_rows, ("species", "initial rates", "time course", "difference"))
+        out.append(f"  k from the regression: {format_value(reg.k, reg.k_stderr)} "
+                   f"{ir.k_unit or ''} (its orders, {reg.dof} degree(s) of freedom)")
+        k = check.rate_constant
+        if k is not None:
+            diff = "" if k["z"] is None else f"; {abs(k['z']):.1f} se on ln k " + (
+                "(agree)" if k["agrees"] else "(DISAGREE)")
+            out.append(f"  {k['name']} at the fitted orders: initial rates "
+                       f"{format_value(k['initial_rates'], k['initial_rates_stderr'])}, time "
+                       f"course {format_value(k['time_course'], k['time_course_stderr'])} "
+                       f"{k['unit'] or ''}{diff}")
+    for note in ir.notes:
+        out += textwrap.wrap(note, 88, initial_indent="  note: ", subsequent_indent="    ",
+                             break_on_hyphens=False)
+    return out
+
+
+def _initial_rates_csv(check):
+    ir = check.initial_rates
+    species = []
+    for r in ir.rates:
+        for s in r.conc0:
+            if s not in species:
+                species.append(s)
+    lines = ["run," + ",".join(f"{s}0" for s in species) + ",rate,stderr,note"]
+    for r in ir.rates:
+        note = r.note.replace('"', "'")
+        lines.append(f"{r.run}," + ",".join(f"{r.conc0.get(s, 0):.10g}" for s in species)
+                     + f",{'' if r.rate is None else f'{r.rate:.10g}'},"
+                       f"{'' if r.stderr is None else f'{r.stderr:.10g}'},\"{note}\"")
+    return "\n".join(lines) + "\n"
+
+
+def write_ranking(out_dir, comparison, top=10, provenance=None):
+    """Write a ranking's outputs into `out_dir`.
+
+    Files: ``ranking.json`` (see :meth:`Comparison.to_dict`), ``ranking.txt``,
+    ``weights.png``/``.svg``; with the initial-rates cross-check
+    ``initial_rates.png``/``.svg`` and ``initial_rates.csv``; the best
+    candidate's fit in ``best/`` (as :func:`write_fit`); and, when given,
+    ``provenance.json`` (see :func:`kinfit.provenance.collect`).
+
+    Returns
+    -------
+    list of pathlib.Path
+        The files written.
+    """
+    from .plots import plot_initial_rates, plot_weights
+
+    out_dir = _prepare(out_dir)
+    figures = {"weights": plot_weights(comparison)}
+    check = comparison.cross_check
+    if check is not None:
+        figures["initial_rates"] = plot_initial_rates(check)
+    payload = {f"{name}.{fmt}": figure_bytes(fig, fmt)
+               for name, fig in figures.items() for fmt in ("png", "svg")}
+    texts = {"ranking.txt": format_ranking(comparison, top) + "\n"}
+    if check is not None:
+        texts["initial_rates.csv"] = _initial_rates_csv(check)
+    data = comparison.to_dict()
+    out_dir.mkdir(parents=True, exist_ok=True)
+    written = write_fit(out_dir / "best", comparison.best.fit, provenance=provenance)
+    if provenance is not None:
+        write_json(out_dir / "provenance.json", provenance)
+        written.append(out_dir / "provenance.json")
+    for name, blob in payload.items():
+        write_bytes(out_dir / name, blob)
+        written.append(out_dir / name)
+    for name, text in texts.items():
+        write_text(out_dir / name, text)
+        written.append(out_dir / name)
+    write_json(out_dir / "ranking.json", data)
+    return written + [out_dir / "ranking.json"]

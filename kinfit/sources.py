@@ -74,6 +74,11 @@ def decode(data: bytes, name):
                 f"{name}, line {line}: byte 0x{data[exc.start]:02x} is not valid UTF-8 "
                 f"(the file may be in Latin-1 or Windows-1252); save it as UTF-8") from None
     if "\x00" in text:
+        zeros_odd = data[1::2].count(0) > 0.4 * len(data[1::2])
+        zeros_even = data[0::2].count(0) > 0.4 * len(data[0::2])
+        if len(data) >= 8 and zeros_odd != zeros_even:
+            raise KinfitError(f"{name}: looks like UTF-16 without a byte-order mark; save it "
+                              f"as UTF-8")
         raise KinfitError(f"{name}: contains NUL characters; expected a text file")
     return text.replace("\r\n", "\n").replace("\r", "\n")
 

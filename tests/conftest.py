@@ -6,6 +6,19 @@ import textwrap
 from pathlib import Path
 
 import pytest
+from hypothesis import HealthCheck, settings
+
+# Property-based fuzzing: a quick profile for every test run, a long one
+# (10,000 examples per target) on request:
+#     python -m pytest tests/test_fuzz.py --hypothesis-profile=long
+settings.register_profile("default", max_examples=100, deadline=None,
+                          suppress_health_check=[HealthCheck.too_slow,
+                                                 HealthCheck.function_scoped_fixture])
+settings.register_profile("long", max_examples=10_000, deadline=None,
+                          suppress_health_check=[HealthCheck.too_slow,
+                                                 HealthCheck.function_scoped_fixture,
+                                                 HealthCheck.data_too_large])
+settings.load_profile("default")
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "demo"
@@ -180,3 +193,65 @@ def eyring_study(tmp_path_factory):
     mech = load_mechanism(folder / "model.toml")
     return {"folder": folder, "experiment": exp, "mechanism": mech, "truth": truth,
             "result": fit(exp, mech, starts=1)}
+
+
+def synthetic_power_law(folder, seed, truth=(0.02, 1.0, 2.0), relative=0.01,
+                        absolute=1e-4, times=None, starts=None):
+    """Seeded synthetic A + B -> P data, rate k [A]^m [B]^n, [A] and [P] measured.
+
+    Each point gets Gaussian noise of σ = sqrt(absolute² + (relative·y)²), which
+    the experiment file declares. Runs vary [A]0 and [B]0 (not one at a time).
+
+    Returns
+    -------
+    (Experiment, Mechanism)
+        The mechanism is models/power_law_two.toml (free orders m, n in 0..3).
+    """
+    import numpy as np
+
+    from kinfit.data import load_experiment
+    from kinfit.mechanism import load_mechanism
+    from kinfit.simulate import simulate
+
+    k, m, n = truth
+    folder = Path(folder)
+    mech = load_mechanism(MODELS / "power_law_two.toml")
+    write(folder, "model.toml", (MODELS / "power_law_two.toml").read_text(encoding="utf-8"))
+    rng = np.random.default_rng(seed)
+    times = np.linspace(0, 100, 21) if times is None else np.asarray(times, dtype=float)
+    starts = starts or {"r1": (1.0, 1.0), "r2": (2.0, 1.0), "r3": (1.0, 2.0),
+                        "r4": (0.5, 1.5)}
+    rows, runs = [], []
+    for name, (a0, b0) in starts.items():
+        traj = simulate(mech, {"A": a0, "B": b0}, {"k": k, "m": m, "n": n}, times)
+        for species in ("A", "P"):
+            true = traj[species]
+            sigma = np.sqrt(absolute ** 2 + (relative * true) ** 2)
+            y = true + rng.normal(0.0, sigma)
+            rows += [f"{name},{t:.6g},{species},{v:.8g}" for t, v in zip(times, y)]
+        runs.append(f'[[runs]]\nname = "{name}"\ninitial = {{ A = {a0}, B = {b0} }}\n')
+    write(folder, "traces.csv", "run,time,species,value\n" + "\n".join(rows) + "\n")
+    write(folder, "e.toml", '[data]\nfile = "traces.csv"\n[noise]\n'
+                            f'default = {{ absolute = {absolute}, relative = {relative} }}\n'
+                            + "\n".join(runs))
+    return load_experiment(folder / "e.toml"), mech
+
+
+@pytest.fixture(scope="session")
+def small_ranking(tmp_path_factory):
+    """A ranked order search on small synthetic data (true orders m = 1, n = 2).
+
+    Returns
+    -------
+    (Comparison, Experiment, Mechanism)
+    """
+    import numpy as np
+
+    from kinfit.compare import rank
+
+    folder = tmp_path_factory.mktemp("ranking")
+    exp, mech = synthetic_power_law(folder, seed=21, times=np.linspace(0, 100, 11),
+                                    starts={"r1": (1.0, 1.0), "r2": (2.0, 1.0),
+                                            "r3": (1.0, 2.0)})
+    comparison = rank(exp, mech, {"m": [1, 2], "n": [1, 2]}, starts=2, workers=1)
+    return comparison, exp, mech

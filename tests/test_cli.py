@@ -17,7 +17,7 @@ runner = CliRunner()
 
 
 def test_help_of_every_command_shows_an_example():
-    for command in ([], ["fit"], ["simulate"], ["demo"], ["components"]):
+    for command in ([], ["fit"], ["simulate"], ["demo"], ["rank"], ["components"]):
         result = runner.invoke(app, command + ["--help"])
         assert result.exit_code == 0
         assert "Example:" in result.output and "kinfit " in result.output
@@ -287,6 +287,76 @@ def test_two_stage_that_cannot_run_is_skipped_with_a_warning(tmp_path):
     assert "warning: the two-stage analysis was skipped" in result.output
     assert "3 fitted parameters but only 3 data points" in result.output
     assert json.loads((out / "temperature.json").read_text())["two_stage"] is None
+
+
+# ------------------------------------------------------------------- rank
+
+@pytest.fixture
+def rank_inputs(tmp_path):
+    import numpy as np
+
+    from conftest import synthetic_power_law
+
+    synthetic_power_law(tmp_path, seed=5, times=np.linspace(0, 100, 9),
+                        starts={"r1": (1.0, 1.0), "r2": (2.0, 1.0), "r3": (1.0, 2.0)})
+    return tmp_path
+
+
+def test_rank_command(rank_inputs):
+    out = rank_inputs / "ranked"
+    result = runner.invoke(app, ["rank", str(rank_inputs / "e.toml"), "--model",
+                                 str(rank_inputs / "model.toml"), "--orders", "m=1,2",
+                                 "--orders", "n=2", "--starts", "1", "--workers", "1",
+                                 "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert "Ranking of 3 candidates" in result.output and "Verdict" in result.output
+    data = json.loads((out / "ranking.json").read_text())
+    assert data["criterion"] == "aicc"
+    assert data["candidates"][0]["fixed"] == {"m": 1.0, "n": 2.0}
+    assert sum(c["akaike_weight"] for c in data["candidates"]) == pytest.approx(1.0)
+    assert data["nested_tests"] and data["initial_rates"]["regression"] is not None
+    assert (out / "weights.png").exists() and (out / "best" / "result.json").exists()
+    assert (out / "report.html").exists()
+    provenance = json.loads((out / "provenance.json").read_text())
+    assert set(provenance["inputs"]) >= {"experiment", "model 1"}
+    assert provenance["settings"]["orders"] == {"m": [1.0, 2.0], "n": [2.0]}
+
+
+@pytest.mark.parametrize("orders, message", [
+    ("m=1,two", "'two' is not a number"),
+    ("q=1,2", "no model given has order parameter"),
+    ("m=5", "cannot fix m at 5"),
+])
+def test_rank_bad_orders(rank_inputs, orders, message):
+    out = rank_inputs / "ranked"
+    result = runner.invoke(app, ["rank", str(rank_inputs / "e.toml"), "-m",
+                                 str(rank_inputs / "model.toml"), "--orders", orders,
+                                 "--out", str(out)])
+    assert result.exit_code == 2, result.output
+    errors = [line for line in result.output.splitlines() if line.startswith("error:")]
+    assert len(errors) == 1 and re.search(message, errors[0]), result.output
+    assert "Traceback" not in result.output and not out.exists()
+
+
+def test_rank_needs_two_candidates_and_a_known_criterion(rank_inputs):
+    base = ["rank", str(rank_inputs / "e.toml"), "-m", str(rank_inputs / "model.toml"),
+            "--out", str(rank_inputs / "x")]
+    result = runner.invoke(app, base)
+    assert result.exit_code == 2 and "at least two candidates" in result.output
+    result = runner.invoke(app, base + ["-m", str(rank_inputs / "model.toml"), "--criterion",
+                                        "hqic"])
+    assert result.exit_code == 2 and "unknown criterion 'hqic'" in result.output
+    assert not (rank_inputs / "x").exists()
+
+
+def test_progress_bar_counts_fits():
+    from kinfit.cli import _ProgressBar
+
+    bar = _ProgressBar("fitting candidates")
+    for done in (1, 2, 3):
+        bar(done, 3, f"candidate {done}")
+    assert bar.bar.length == 3 and bar.bar.pos == 3
+    bar.close()
 
 
 # ------------------------------------------------------------ spectrometer

@@ -217,3 +217,25 @@ def test_no_warning_for_a_clean_model():
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         load_mechanism(MODELS / "pre_equilibrium.toml")
+
+
+def test_with_fixed_and_with_start():
+    from kinfit.mechanism import with_fixed, with_start
+
+    free = load_mechanism(MODELS / "power_law_two.toml")
+    fixed = with_fixed(free, {"m": 1.5}, name="m fixed")
+    assert fixed.name == "m fixed" and fixed.parameters["m"].value == 1.5
+    assert not fixed.parameters["m"].vary and free.parameters["m"].vary    # a copy
+    # the compiled arrays are shared: fixing changes values, not the layout
+    k, orders = fixed.rate_arrays([0.5, 1.5, 2.0])
+    assert orders[0, 0, fixed.species.index("A")] == 1.5
+    with pytest.raises(KinfitError, match="cannot fix m at 3.5; the model allows m from 0 "
+                                          "to 3"):
+        with_fixed(free, {"m": 3.5})
+    with pytest.raises(KinfitError, match="no parameter named 'q'"):
+        with_fixed(free, {"q": 1})
+    started = with_start(fixed, {"k": 2e-3, "m": 0.2, "n": 9.0})
+    assert started.parameters["k"].value == 2e-3
+    assert started.parameters["m"].value == 1.5          # fixed: left alone
+    assert started.parameters["n"].value == 3.0          # clipped into its bounds
+    assert with_start(free, {"k": -1.0}).parameters["k"].value == 0.5   # log scale: kept

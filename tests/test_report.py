@@ -101,6 +101,37 @@ def test_write_prediction(tmp_path, arrhenius_study):
     assert data["extrapolated"] is True and "calorimetry" in data["cautions"]
 
 
+def test_format_ranking(small_ranking):
+    from kinfit.report import format_ranking
+
+    comparison, _, _ = small_ranking
+    text = format_ranking(comparison, top=3)
+    lines = text.splitlines()
+    assert lines[0].startswith("Ranking of 5 candidates fitted to")
+    assert "sorted by AICc" in lines[0]
+    header = next(line for line in lines if "ΔAICc" in line)
+    assert header.split()[:4] == ["#", "candidate", "p", "χ²"]
+    assert "  1  m=1, n=2" in text and "... 2 more in ranking.json" in text
+    assert "Verdict" in text and "Nested pairs" in text
+    assert "Initial-rates cross-check" in text and "Burnham & Anderson" in text
+    assert "Kass & Raftery" in text and "process-safety review" in text
+
+
+def test_write_ranking(small_ranking, tmp_path):
+    from kinfit.report import write_ranking
+
+    comparison, _, _ = small_ranking
+    written = write_ranking(tmp_path / "out", comparison)
+    names = {p.name for p in written}
+    assert {"ranking.json", "ranking.txt", "weights.png", "weights.svg", "initial_rates.png",
+            "initial_rates.csv", "result.json"} <= names
+    data = json.loads((tmp_path / "out" / "ranking.json").read_text())
+    assert data["candidates"][0]["name"] == comparison.best.name
+    assert (tmp_path / "out" / "best" / "fit.png").exists()
+    csv = (tmp_path / "out" / "initial_rates.csv").read_text().splitlines()
+    assert csv[0] == "run,A0,B0,rate,stderr,note" and len(csv) == 4
+
+
 def test_signal_summary_and_files():
     from conftest import DEMO
     from kinfit.report import format_components, format_signals, signal_outputs
