@@ -199,6 +199,102 @@ def _temperature_outputs(exp, mech, result, two_stage, seed):
     return temperature_outputs(activations, analysis, basis_from_fit(result), result)
 
 
+@app.command("sample")
+def sample_command(
+    experiment: Path = typer.Argument(..., help="Experiment file (TOML)."),
+    model: Path = typer.Option(..., "--model", "-m", help="Model file (TOML)."),
+    out: Path = typer.Option(Path("kinfit-posterior"), "--out", "-o",
+                             help="Folder for posterior.json, chain.npz and figures."),
+    walkers: int = typer.Option(32, "--walkers", min=2, help="Walkers of the ensemble (even, "
+                                "at least twice the sampled parameters)."),
+    steps: int = typer.Option(2000, "--steps", min=1, help="Steps of each walker (a resumed "
+                              "chain continues up to this total)."),
+    seed: int = typer.Option(0, "--seed", help="Seed of the fit's start screen, the walkers' "
+                             "start and the sampler."),
+    burn: Optional[int] = typer.Option(None, "--burn", min=0, help="Steps to discard "
+                                       "[default: 3 autocorrelation times]."),
+    thin: int = typer.Option(1, "--thin", min=1, help="Keep every N-th step in the summary."),
+    noise: str = typer.Option("auto", "--noise", help="auto, declared, per-species or shared "
+                              "(auto: the experiment's [noise] if declared, else one σ per "
+                              "species, sampled)."),
+    moves: str = typer.Option("de", "--moves", help="de (emcee's differential evolution) or "
+                              "stretch (emcee's own default)."),
+    starts: int = typer.Option(8, "--starts", min=1, help="Starting points of the fit."),
+    checkpoint_every: int = typer.Option(100, "--checkpoint-every", min=1,
+                                         help="Write chain.npz every N steps."),
+    resume: bool = typer.Option(False, "--resume", help="Continue the chain in OUT/chain.npz."),
+    overwrite: bool = typer.Option(False, "--overwrite", help="Replace a chain already in OUT."),
+    max_time: Optional[float] = typer.Option(None, "--max-time", help="Stop sampling after "
+                                             "this many seconds (resume later)."),
+    profile: bool = typer.Option(True, "--profile/--no-profile",
+                                 help="Also compute profile-likelihood intervals."),
+    report: bool = typer.Option(True, "--report/--no-report",
+                                help="Also write the fit's outputs and report.html."),
+):
+    """Sample the posterior of the orders and rate constants with emcee.
+
+    Fits first, starts the walkers around the fit, checkpoints the chain to
+    OUT/chain.npz every --checkpoint-every steps, says whether the chain
+    converged, and prints each parameter's covariance, profile-likelihood
+    and posterior 95 % intervals side by side. Writes posterior.json,
+    posterior_summary.txt, chain.npz, corner.png, bands.png, profiles.png.
+    If the process stops, run the same command with --resume.
+
+    Example:
+
+      kinfit sample demo/experiment.toml --model demo/thiol_addition.toml --out post --steps 2000
+    """
+    with _handled():
+        import signal
+
+        from .data import load_experiment
+        from .mechanism import load_mechanism
+        from .posterior import CHAIN_FILE, load_chain, sample
+        from .report import format_posterior, write_posterior
+
+        if max_time is not None and not max_time > 0:
+            raise KinfitError(f"--max-time {max_time}: expected a positive number of seconds")
+        if out.exists() and not out.is_dir():
+            raise KinfitError(f"--out {out}: exists and is not a folder")
+        chain_file = out / CHAIN_FILE
+        if chain_file.exists() and not resume and not overwrite:
+            state, _ = load_chain(chain_file)
+            raise KinfitError(f"{chain_file} already holds a chain ({state.n_done} steps); add "
+                              f"--resume to continue it or --overwrite to start again")
+        exp = load_experiment(experiment)
+        mech = load_mechanism(model)
+
+        def stop(signum, frame):
+            raise KeyboardInterrupt
+
+        previous = signal.signal(signal.SIGTERM, stop)
+        try:
+            post = sample(exp, mech, walkers=walkers, steps=steps, seed=seed, noise=noise,
+                          moves=moves, burn=burn, thin=thin, checkpoint=chain_file,
+                          checkpoint_every=checkpoint_every, resume=resume, max_time=max_time,
+                          starts=starts, profile=profile)
+        finally:
+            signal.signal(signal.SIGTERM, previous)
+        written = write_posterior(out, post)
+        if report:
+            from .report import write_fit
+
+            exp_used = post.fit.experiment
+            files, summary = {}, None
+            if post.fit.signals is not None:    # the solved absorptivities and spectra too
+                from .report import signal_outputs
+
+                files, summary = signal_outputs(post.fit)
+            provenance = _provenance(exp_used, post.fit.mechanism, seed,
+                                     {"walkers": walkers, "steps": steps, "noise": noise,
+                                      "moves": moves, "starts": starts})
+            written = write_fit(out, post.fit, extra_files=files, extra_summary=summary,
+                                provenance=provenance) + written
+            written.append(_report(out))
+        typer.echo(format_posterior(post))
+        typer.echo(f"\nWrote {', '.join(p.name for p in written)} in {out}")
+
+
 @app.command("simulate")
 def simulate_command(
     model: Path = typer.Argument(..., help="Model file (TOML)."),

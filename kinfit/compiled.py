@@ -32,10 +32,11 @@ import math
 
 import numpy as np
 
-__all__ = ["AVAILABLE", "OK", "STIFF", "FAILED", "KIND_LOG_K", "KIND_ORDER", "KIND_INITIAL",
+__all__ = ["AVAILABLE", "OK", "STIFF", "FAILED", "BLOWUP", "KIND_LOG_K", "KIND_ORDER", "KIND_INITIAL",
            "integrate_batch", "integrate_stiff"]
 
-OK, STIFF, FAILED = 0, 1, 2
+OK, STIFF, FAILED, BLOWUP = 0, 1, 2, 3
+BLOWUP_FACTOR = 1e6   # a concentration this many times the largest start: the equations diverge
 KIND_LOG_K, KIND_ORDER, KIND_INITIAL = 0, 1, 2
 
 try:  # numba is a dependency; without it kinfit uses LSODA alone
@@ -294,7 +295,7 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
         if steps >= max_steps:
             return STIFF, steps, n_rhs
         if h < 1e-14 * max(abs(t), t_end):
-            return FAILED, steps, n_rhs
+            return STIFF, steps, n_rhs       # steps collapsed: leave it to the implicit method
         if t + h > t_end:
             h = t_end - t
         # stages 2..7; the 7th is evaluated at the new solution (first same as last)
@@ -363,6 +364,9 @@ def _one(z0, n_species, n_sens, stoich, k, E, present, eps, kind, jj, ss, t_out,
                         s_out[i_out, b, p] = v
                 i_out += 1
             t = t_new
+            for a in range(S):
+                if abs(z[a]) > BLOWUP_FACTOR * scale:
+                    return BLOWUP, steps, n_rhs
             for a in range(n):
                 z[a] = z_new[a]
                 K[0, a] = K[6, a]
@@ -600,6 +604,11 @@ def _ros_lockstep(Y0, stoich, K, EE, present, eps, t_out, rtol, atol, max_steps,
     RC[3, 0] = _C41
     RC[3, 1] = _C42
     RC[3, 2] = _C43
+    blowup = 0.0
+    for c in range(m):
+        for a in range(S):
+            blowup = max(blowup, abs(Y0[c, a]))
+    blowup = BLOWUP_FACTOR * max(blowup, 1e-300)
     n_out = t_out.size
     i_out = 0
     while i_out < n_out and t_out[i_out] <= 0.0:
@@ -611,7 +620,19 @@ def _ros_lockstep(Y0, stoich, K, EE, present, eps, t_out, rtol, atol, max_steps,
         return OK, 0, 0
     t = 0.0
     t_end = t_out[n_out - 1]
-    h = min(1e-6 * t_end, t_out[i_out])
+    # first step from the size of the initial rates (Hairer, Nørsett & Wanner II.4)
+    h = 1e-6 * t_end
+    for c in range(m):
+        _f(Y[c], stoich, K[c], EE[c], present, eps, pw, slope, dlog, F0[c])
+        y_norm = 0.0
+        f_norm = 0.0
+        for a in range(S):
+            sc = atol + abs(Y[c, a]) * rtol
+            y_norm = max(y_norm, abs(Y[c, a]) / sc)
+            f_norm = max(f_norm, abs(F0[c, a]) / sc)
+        if f_norm > 0.0 and y_norm > 0.0:
+            h = min(h, 0.01 * y_norm / f_norm)
+    h = max(min(h, t_out[i_out]), 1e-300)
     n_rhs = 0
     steps = 0
     while t < t_end:
@@ -622,7 +643,7 @@ def _ros_lockstep(Y0, stoich, K, EE, present, eps, t_out, rtol, atol, max_steps,
         if t + h >= target:
             h = target - t
             last = True
-        if h <= 1e-15 * max(t_end, 1.0):
+        if h <= 1e-15 * t or h <= 0.0:
             return FAILED, steps, n_rhs
         ok_lu = True
         for c in range(m):
@@ -672,6 +693,10 @@ def _ros_lockstep(Y0, stoich, K, EE, present, eps, t_out, rtol, atol, max_steps,
             continue
         if en <= 1.0:
             t = target if last else t + h
+            for c in range(m):
+                for a in range(S):
+                    if abs(Y[c, a]) > blowup:
+                        return BLOWUP, steps, n_rhs
             for c in range(m):
                 for a in range(S):
                     Y[c, a] = Ynew[c, a]

@@ -179,13 +179,11 @@ def _parameters(folder, data):
     if not result:
         return []
     post = (data["posterior"] or {}).get("parameters", {})
-    profiles = (data["posterior"] or {}).get("profile", {}) or {}
     rows = []
     for name, p in result.get("parameters", {}).items():
         se = p.get("stderr")
         cov = [p["value"] - 1.96 * se, p["value"] + 1.96 * se] if se is not None else None
-        prof = profiles.get(name, {}).get("ci95") if isinstance(profiles.get(name), dict) \
-            else None
+        prof = ((post.get(name) or {}).get("profile") or {}).get("ci95")
         rows.append([name, _num(p["value"]), _num(se, 2), _interval(cov),
                      _interval(prof), _interval((post.get(name) or {}).get("ci95")),
                      p.get("unit") or "", ("fixed" if not p.get("vary") else "") +
@@ -210,8 +208,8 @@ def _parameters(folder, data):
 def _runs(folder, data):
     if not data["result"]:
         return []
-    return [_figure(folder, "fit_bands", "Each run's data with the fitted curves and the "
-                                         "posterior-predictive band.")
+    return [_figure(folder, "bands", "Each run's data with the posterior's curves and 95 % "
+                                     "bands for a new measurement.")
             or _figure(folder, "fit", "Each run's data (points) with the global fit (lines)."),
             _figure(folder, "residuals", "Residuals of each run; the grey band marks ±2σ.")]
 
@@ -239,20 +237,45 @@ def _posterior(folder, data):
     diag = post.get("diagnostics", {})
     blocks = []
     converged = diag.get("converged")
+    advice = diag.get("advice") or "run more steps"
+    reasons = "; ".join(diag.get("reasons") or [])
     blocks.append(_text("text" if converged else "warning",
                         "The chains converged." if converged else
-                        "The chains have NOT converged: " + "; ".join(diag.get("advice", []) or
-                                                                       ["run more steps"])))
+                        f"The chains have NOT converged ({reasons}): "
+                        f"{advice if isinstance(advice, str) else '; '.join(advice)}"))
     rows = [[name, _num(p.get("median")), _num(p.get("mean")), _num(p.get("sd"), 2),
              _interval(p.get("ci68")), _interval(p.get("ci95"))]
             for name, p in post.get("parameters", {}).items()]
     blocks.append(_table(["parameter", "median", "mean", "sd", "68 %", "95 %"], rows))
-    summary = [[k, _num(v, 4) if isinstance(v, (int, float)) else str(v)]
-               for k, v in diag.items() if not isinstance(v, (dict, list))]
+    per = [[name, _num((diag.get("autocorr_time") or {}).get(name), 3),
+            _num((diag.get("ess") or {}).get(name), 4), _num((diag.get("rhat") or {}).get(name), 4)]
+           for name in post.get("parameters", {})]
+    if per:
+        blocks.append(_table(["parameter", "autocorrelation time", "effective samples",
+                              "split R-hat"], per))
+    summary = [[k.replace("_", " "), _num(v, 4) if isinstance(v, (int, float)) else str(v)]
+               for k, v in diag.items()
+               if not isinstance(v, (dict, list)) and k not in ("advice",)]
     if summary:
         blocks.append(_table(["diagnostic", "value"], summary))
+    corr = post.get("rate_constant_order_correlations")
+    if corr:
+        blocks.append(_text("text", "Correlation between rate constants and orders in the "
+                                    "posterior: " + _correlations_text(corr)))
     blocks.append(_figure(folder, "corner", "Posterior of the parameters (corner plot)."))
+    blocks.append(_figure(folder, "profiles", "Profile likelihood of each parameter."))
     return blocks
+
+
+def _correlations_text(corr):
+    if isinstance(corr, dict):
+        return "; ".join(f"{k} {v:+.2f}" if isinstance(v, (int, float)) else f"{k} {v}"
+                         for k, v in corr.items())
+    if isinstance(corr, list):
+        return "; ".join(f"{c.get('rate_constant')}–{c.get('order')} "
+                         f"{c.get('posterior', float('nan')):+.2f}" if isinstance(c, dict)
+                         else str(c) for c in corr)
+    return str(corr)
 
 
 def _ranking(folder, data):

@@ -33,6 +33,7 @@ import numpy as np
 from .errors import KinfitError, KinfitWarning, where
 from .expressions import (PARAMETER_NAME, SPECIES_NAME, ParseError, PowerLaw, Reaction,
                           parse_reaction, to_power_law)
+from .priors import parse_prior
 from .sources import find_line, load_toml
 from .temperature import check_roles, parse_temperature
 
@@ -44,7 +45,7 @@ ROLE_ORDER = "order"
 
 _MODEL_KEYS = {"name", "description", "held_constant", "steps", "parameters", "temperature"}
 _STEP_KEYS = {"reaction", "rate", "reverse_rate", "label"}
-_PARAMETER_KEYS = {"value", "min", "max", "vary"}
+_PARAMETER_KEYS = {"value", "min", "max", "vary", "prior"}
 
 
 @dataclass(frozen=True)
@@ -62,6 +63,9 @@ class Parameter:
     role : str
         ``"rate constant"`` (a prefactor of a rate law; fitted on a log scale,
         never negative) or ``"order"`` (an exponent), or ``"unused"``.
+    prior : Prior or None
+        A prior from the model file for posterior sampling; ``None`` for
+        kinfit's default (see :mod:`kinfit.space`).
     """
 
     name: str
@@ -70,6 +74,7 @@ class Parameter:
     max: float = math.inf
     vary: bool = True
     role: str = ROLE_RATE_CONSTANT
+    prior: object = None
 
 
 @dataclass(frozen=True)
@@ -626,7 +631,8 @@ def _parse_parameter(name, spec, role, loc):
     if role == ROLE_ORDER and abs(value) > 20:
         raise KinfitError(f"{loc}: the order {name} = {value:g} is beyond ±20; is it a "
                           f"typing error?")
-    return Parameter(name, value, lo, hi, vary, role)
+    prior = parse_prior(spec["prior"], loc) if "prior" in spec else None
+    return Parameter(name, value, lo, hi, vary, role, prior)
 
 
 def _compile(mech):

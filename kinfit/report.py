@@ -20,7 +20,8 @@ from .errors import KinfitError
 __all__ = ["CAUTIONS", "format_value", "format_fit", "write_fit", "write_simulation",
            "figure_bytes", "temperature_cautions", "format_activation", "temperature_outputs",
            "format_prediction", "write_prediction", "format_ranking", "format_cross_check",
-           "write_ranking", "format_signals", "signal_outputs", "format_components"]
+           "write_ranking", "format_posterior", "write_posterior", "format_signals",
+           "signal_outputs", "format_components"]
 
 CAUTIONS = (
     "A rate law and its rate constants hold only over the conditions they were measured "
@@ -117,16 +118,22 @@ def format_fit(result, cautions=True):
                     strong.append(f"{names[i]}–{names[j]} {c:+.3f}")
         if strong:
             out.append(f"     strong correlations: {', '.join(strong)}")
-    if result.warnings:
+    return "\n".join(out + _warnings_and_cautions(result.warnings, cautions))
+
+
+def _warnings_and_cautions(warnings, cautions):
+    """The closing lines of a summary: its warnings and (optionally) the cautions."""
+    out = []
+    if warnings:
         out += ["", "Warnings"]
-        for w in result.warnings:
+        for w in warnings:
             out += textwrap.wrap(w, 88, initial_indent="  - ", subsequent_indent="    ",
                                  break_on_hyphens=False)
     if cautions:
         out += ["", "Caution"] + textwrap.wrap(CAUTIONS, 88, initial_indent="  ",
                                                subsequent_indent="  ",
                                                break_on_hyphens=False)
-    return "\n".join(out)
+    return out
 
 
 def figure_bytes(fig, fmt="png", dpi=150):
@@ -837,3 +844,115 @@ def write_ranking(out_dir, comparison, top=10, provenance=None):
         written.append(out_dir / name)
     write_json(out_dir / "ranking.json", data)
     return written + [out_dir / "ranking.json"]
+
+
+# ----------------------------------------------------------------- posterior
+
+def _interval_text(pair, digits=4):
+    if pair is None:
+        return "—"
+    ends = ["open" if v is None else f"{v:.{digits}g}" for v in pair]
+    return f"[{ends[0]}, {ends[1]}]"
+
+
+def format_posterior(post, cautions=True):
+    """Readable summary of a :class:`~kinfit.posterior.Posterior` for the terminal.
+
+    States whether the chain converged (and what to do if not), shows every
+    parameter's posterior beside its three kinds of 95 % interval
+    (covariance, profile likelihood, posterior) with flags, the convergence
+    figures, the correlation of each rate constant with each order, the
+    priors and the cautions.
+    """
+    from .posterior import compare_intervals
+
+    fit, diag, settings = post.fit, post.diagnostics, post.settings
+    exp, mech = fit.experiment, fit.mechanism
+    out = [f"Posterior of '{mech.name}' given {len(exp.runs)} runs ({fit.n_points} points)",
+           f"  emcee, {settings.walkers} walkers × {diag.n_steps} steps ({settings.moves} "
+           f"moves, seed {settings.seed}); noise: {post.noise}; "
+           f"{post.n_evaluations} evaluations in {post.elapsed:.1f} s", ""]
+    if diag.converged:
+        out.append(f"CONVERGED: chain after burn-in = {diag.tau_multiple:.0f} autocorrelation "
+                   f"times (50 wanted), largest R-hat {max(diag.rhat.values()):.3f} "
+                   f"(≤ 1.01 wanted)")
+    else:
+        out.append("NOT CONVERGED — do not report these numbers yet:")
+        for reason in diag.reasons:
+            out += textwrap.wrap(reason, 88, initial_indent="  - ", subsequent_indent="    ")
+        out += textwrap.wrap(diag.advice, 88, initial_indent="  ", subsequent_indent="  ")
+    out += ["", "Parameters: posterior median ± sd, and 95 % intervals of three kinds",
+            "  (covariance = fit ± 1.96 SE; profile likelihood; posterior 2.5–97.5 %)"]
+    rows = []
+    for row in compare_intervals(post):
+        name = row["name"]
+        s = post.summary[name]
+        rows.append((name, post.units.get(name) or "", format_value(s["median"], s["sd"]),
+                     _interval_text(row["covariance"]), _interval_text(row["profile"]),
+                     _interval_text(row["posterior"]), ", ".join(row["flags"])))
+    out += _table(rows, ("name", "unit", "posterior", "covariance 95 %", "profile 95 %",
+                         "posterior 95 %", "flags"))
+    flagged = [r for r in rows if r[-1]]
+    if flagged:
+        out.append("  flags: 'intervals disagree' = the model is non-linear in this parameter "
+                   "here (or the prior matters):")
+        out.append("  prefer the profile or posterior interval to ± SE; 'not identifiable' = "
+                   "the data cannot pin it down.")
+    out += ["", "Convergence (after burn-in)"]
+    out.append("  autocorrelation time τ (steps): " + ", ".join(
+        f"{n} {t:.1f}" for n, t in diag.autocorr_time.items()))
+    out.append("  effective sample size: " + ", ".join(
+        f"{n} {e:.0f}" for n, e in diag.ess.items()))
+    out.append("  R-hat: " + ", ".join(f"{n} {r:.3f}" for n, r in diag.rhat.items()))
+    out.append(f"  acceptance fraction {diag.acceptance_fraction:.2f} (walkers "
+               f"{diag.acceptance_range[0]:.2f}–{diag.acceptance_range[1]:.2f}); burn-in "
+               f"{diag.burn_in} steps discarded; thin {diag.thin}; {post.samples.shape[0]} "
+               f"samples kept")
+    pairs = post.rate_order_correlations()
+    if pairs:
+        out += ["", "Correlation of rate constants with orders (posterior; fit covariance)"]
+        for a, b, rho, rho_fit in pairs:
+            fit_text = f"{rho_fit:+.3f}" if rho_fit is not None else "—"
+            strength = "strong" if abs(rho) >= 0.9 else "moderate" if abs(rho) >= 0.5 else "weak"
+            out.append(f"  {a}–{b}: {rho:+.3f} ({fit_text}), {strength}")
+    out += ["", "Priors"]
+    for name in post.names:
+        prior = post.priors[name]
+        src = " (from the model file)" if prior.source == "model file" else ""
+        out.append(f"  {name}: {prior.describe(post.units.get(name) or '')}{src}")
+    return "\n".join(out + _warnings_and_cautions(post.warnings, cautions))
+
+
+def write_posterior(out_dir, post):
+    """Write a posterior's outputs into `out_dir`.
+
+    Files: ``posterior.json`` (see :meth:`Posterior.to_dict`),
+    ``posterior_summary.txt``, ``corner.png``, ``bands.png`` (each run's data
+    with posterior bands), ``profiles.png``, and ``chain.npz`` (the whole
+    chain; left as it is when the sampler already wrote it there).
+
+    Returns
+    -------
+    list of pathlib.Path
+    """
+    from .plots import plot_bands, plot_corner, plot_profiles
+    from .posterior import CHAIN_FILE, write_chain
+
+    out_dir = _prepare(out_dir)
+    figures = {"corner.png": plot_corner(post), "bands.png": plot_bands(post),
+               "profiles.png": plot_profiles(post)}
+    payload = {name: figure_bytes(fig) for name, fig in figures.items()}
+    summary = format_posterior(post)
+    data = post.to_dict()
+    out_dir.mkdir(parents=True, exist_ok=True)
+    written = []
+    chain_path = out_dir / CHAIN_FILE
+    if post.chain_file is None or Path(post.chain_file).resolve() != chain_path.resolve():
+        write_chain(chain_path, post.state, post.chain_meta)
+    written.append(chain_path)
+    for name, blob in payload.items():
+        write_bytes(out_dir / name, blob)
+        written.append(out_dir / name)
+    write_text(out_dir / "posterior_summary.txt", summary + "\n")
+    write_json(out_dir / "posterior.json", data)
+    return written + [out_dir / "posterior_summary.txt", out_dir / "posterior.json"]

@@ -25,7 +25,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .compiled import AVAILABLE, OK, integrate_batch, integrate_stiff
+from .compiled import AVAILABLE, BLOWUP, FAILED, OK, STIFF, integrate_batch, integrate_stiff
 from .errors import KinfitError
 from .mechanism import jacobian, rhs
 
@@ -340,7 +340,9 @@ def integrate_flat(stoichiometry, present, conc0, k, orders, t_out, out_start, *
             stoichiometry, present, conc0, k, orders, t_out, out_start, rtol=rtol,
             atol=atol * scale, eps=1e-9 * scale, sens=sens,
             max_steps=max(1000, max_rhs // 6))
-        todo = np.flatnonzero(status != OK) if (method == "auto" and fallback) else []
+        # systems found stiff go to the implicit methods; a system whose steps collapsed
+        # or whose concentrations diverge has a singularity no method will pass
+        todo = np.flatnonzero(status == STIFF) if (method == "auto" and fallback) else []
         ok = status == OK
         implicit_method = "LSODA"
     else:
@@ -361,6 +363,12 @@ def integrate_flat(stoichiometry, present, conc0, k, orders, t_out, out_start, *
                 atol=atol * scale[i], eps=1e-9 * scale[i], sens=sens,
                 max_steps=max(1000, max_rhs // 3))
             n_rhs += calls
+            if status in (BLOWUP, FAILED):
+                ok[i], message = False, ("the rate equations diverge for these parameters"
+                                         if status == BLOWUP else
+                                         "the integration failed (steps collapsed)")
+                conc[lo:hi] = np.nan
+                continue
             if status != OK:
                 c = None
             else:

@@ -255,3 +255,68 @@ def small_ranking(tmp_path_factory):
                                             "r3": (1.0, 2.0)})
     comparison = rank(exp, mech, {"m": [1, 2], "n": [1, 2]}, starts=2, workers=1)
     return comparison, exp, mech
+
+
+# A straight-line problem for the uncertainty checks: zero-order loss of A,
+# [A] = A0 - k t, with A0 fitted, so the posterior and profile of (k, A0) can be
+# compared with ordinary least squares (statsmodels). The rate constant gets a
+# uniform prior (flat in k, as OLS assumes) from the model file.
+LINE_MODEL = """
+    # zero-order loss of A: [A] = A0 - k t while A lasts
+    name = "zero order"
+    [[steps]]
+    reaction = "A -> P"
+    rate = "k"
+    [parameters]
+    k = { value = 0.04, min = 0, max = 1, prior = { kind = "uniform" } }
+"""
+
+LINE_EXPERIMENT = """
+    name = "straight line"
+    [units]
+    time = "s"
+    concentration = "M"
+    [data]
+    file = "traces.csv"
+    {noise}
+    [[runs]]
+    name = "r1"
+    initial = {{ A = {{ value = 1.0, vary = true, min = 0, max = 5 }} }}
+"""
+
+LINE_SIGMA = 0.01
+LINE_TRUTH = {"k": 0.05, "A0": 1.0}
+
+
+def line_data(seed=3, n=11):
+    """Times [n] and noisy [A] [n] of the straight-line problem (seeded)."""
+    import numpy as np
+
+    rng = np.random.default_rng(seed)
+    t = np.linspace(0.0, 10.0, n)
+    y = LINE_TRUTH["A0"] - LINE_TRUTH["k"] * t + rng.normal(0.0, LINE_SIGMA, n)
+    return t, y
+
+
+def write_line_problem(folder, declared=True, seed=3, n=11):
+    """Write the straight-line model, experiment and data (`n` points) into `folder`."""
+    t, y = line_data(seed, n)
+    noise = f"[noise]\ndefault = {{ absolute = {LINE_SIGMA} }}" if declared else ""
+    model = write(folder, "line_model.toml", LINE_MODEL)
+    exp = write(folder, "line_experiment.toml", LINE_EXPERIMENT.format(noise=noise))
+    rows = "\n".join(f"r1,{ti:.6g},A,{yi:.10g}" for ti, yi in zip(t, y))
+    write(folder, "traces.csv", "run,time,species,value\n" + rows + "\n")
+    return {"model": model, "experiment": exp, "folder": Path(folder), "t": t, "y": y}
+
+
+@pytest.fixture(scope="session")
+def line_posterior(tmp_path_factory):
+    """A short posterior of the straight-line problem (declared noise), shared by tests."""
+    from kinfit.data import load_experiment
+    from kinfit.mechanism import load_mechanism
+    from kinfit.posterior import sample
+
+    paths = write_line_problem(tmp_path_factory.mktemp("line"))
+    post = sample(load_experiment(paths["experiment"]), load_mechanism(paths["model"]),
+                  walkers=16, steps=1500, seed=11, starts=1, progress=False)
+    return post, paths

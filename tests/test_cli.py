@@ -10,14 +10,16 @@ import sys
 import pytest
 from typer.testing import CliRunner
 
-from conftest import DEMO, FIRST_ORDER_MODEL, MODELS, SMALL_EXPERIMENT, SMALL_TRACES, write
+from conftest import (DEMO, FIRST_ORDER_MODEL, MODELS, SMALL_EXPERIMENT, SMALL_TRACES, write,
+                      write_line_problem)
 from kinfit.cli import app
 
 runner = CliRunner()
 
 
 def test_help_of_every_command_shows_an_example():
-    for command in ([], ["fit"], ["simulate"], ["demo"], ["rank"], ["components"]):
+    for command in ([], ["fit"], ["simulate"], ["demo"], ["rank"], ["sample"], ["report"],
+                    ["components"]):
         result = runner.invoke(app, command + ["--help"])
         assert result.exit_code == 0
         assert "Example:" in result.output and "kinfit " in result.output
@@ -357,6 +359,96 @@ def test_progress_bar_counts_fits():
         bar(done, 3, f"candidate {done}")
     assert bar.bar.length == 3 and bar.bar.pos == 3
     bar.close()
+
+
+# ------------------------------------------------------------------- sample
+
+def _sample_args(paths, out, *extra):
+    return ["sample", str(paths["experiment"]), "--model", str(paths["model"]), "--out",
+            str(out), "--walkers", "8", "--seed", "3", "--starts", "1", *extra]
+
+
+def test_sample_command(tmp_path):
+    paths = write_line_problem(tmp_path)
+    out = tmp_path / "post"
+    result = runner.invoke(app, _sample_args(paths, out, "--steps", "400"))
+    assert result.exit_code == 0, result.output
+    assert "NOT CONVERGED" in result.output or "CONVERGED" in result.output
+    assert "covariance 95 %" in result.output and "profile 95 %" in result.output
+    assert "posterior 95 %" in result.output and "Caution" in result.output
+    data = json.loads((out / "posterior.json").read_text())
+    assert set(data["parameters"]) == {"k", "A0_r1"}
+    assert data["settings"]["steps"] == 400 and data["seed"] == 3
+    for name in ("chain.npz", "corner.png", "bands.png", "profiles.png",
+                 "posterior_summary.txt"):
+        assert (out / name).exists(), name
+    # a second run into the same folder must not silently replace the chain
+    again = runner.invoke(app, _sample_args(paths, out, "--steps", "400"))
+    assert again.exit_code == 2 and "already holds a chain (400 steps)" in again.output
+    longer = runner.invoke(app, _sample_args(paths, out, "--steps", "450", "--resume",
+                                             "--no-profile"))
+    assert longer.exit_code == 0, longer.output
+    assert json.loads((out / "posterior.json").read_text())["diagnostics"]["n_steps"] == 450
+
+
+@pytest.mark.parametrize("extra, message", [
+    (["--noise", "loud"], "noise 'loud' is not known"),
+    (["--moves", "hop"], "moves 'hop' is not known"),
+    (["--walkers", "3"], "walkers must be even"),
+    (["--max-time", "-1"], "expected a positive number of seconds"),
+])
+def test_sample_bad_options(tmp_path, extra, message):
+    paths = write_line_problem(tmp_path)
+    out = tmp_path / "post"
+    result = runner.invoke(app, _sample_args(paths, out, "--steps", "10", *extra))
+    assert result.exit_code == 2, result.output
+    assert message in result.output and "Traceback" not in result.output
+    assert not out.exists(), "nothing may be written on bad input"
+
+
+def test_killed_sampler_resumes_to_the_same_chain(tmp_path):
+    # A real process is killed (SIGKILL) after its first checkpoints; the same command
+    # with --resume must finish the chain exactly as an uninterrupted run does.
+    import signal
+    import time
+
+    import numpy as np
+
+    from kinfit.posterior import load_chain
+
+    paths = write_line_problem(tmp_path)
+    command = [sys.executable, "-m", "kinfit.cli"]
+    options = ["--steps", "300", "--checkpoint-every", "10", "--no-profile"]
+    killed = tmp_path / "killed"
+    proc = subprocess.Popen(command + _sample_args(paths, killed, *options),
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    chain_file = killed / "chain.npz"
+    deadline = time.monotonic() + 120
+    try:
+        while time.monotonic() < deadline and proc.poll() is None:
+            if chain_file.exists() and load_chain(chain_file)[0].n_done >= 20:
+                break
+            time.sleep(0.01)
+    finally:
+        proc.send_signal(signal.SIGKILL)
+        proc.wait()
+    done = load_chain(chain_file)[0].n_done
+    assert 20 <= done < 300, "the process must be killed part-way"
+    assert not (killed / "posterior.json").exists()
+    resumed = subprocess.run(command + _sample_args(paths, killed, *options, "--resume"),
+                             capture_output=True, text=True)
+    assert resumed.returncode == 0, resumed.stderr
+    whole = tmp_path / "whole"
+    straight = subprocess.run(command + _sample_args(paths, whole, *options),
+                              capture_output=True, text=True)
+    assert straight.returncode == 0, straight.stderr
+    a, b = load_chain(chain_file)[0], load_chain(whole / "chain.npz")[0]
+    assert a.n_done == b.n_done == 300
+    np.testing.assert_array_equal(a.chain, b.chain)
+    np.testing.assert_array_equal(a.log_prob, b.log_prob)
+    post_a = json.loads((killed / "posterior.json").read_text())["parameters"]
+    post_b = json.loads((whole / "posterior.json").read_text())["parameters"]
+    assert post_a["k"]["median"] == post_b["k"]["median"]
 
 
 # ------------------------------------------------------------ spectrometer

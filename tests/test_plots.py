@@ -9,8 +9,8 @@ from conftest import MODELS
 from kinfit.data import load_experiment
 from kinfit.fit import fit
 from kinfit.mechanism import load_mechanism
-from kinfit.plots import (plot_initial_rates, plot_residuals, plot_traces, plot_trajectory,
-                          plot_weights)
+from kinfit.plots import (plot_bands, plot_corner, plot_initial_rates, plot_profiles,
+                          plot_residuals, plot_traces, plot_trajectory, plot_weights)
 from kinfit.simulate import simulate
 from kinfit.units import Units
 
@@ -61,7 +61,8 @@ def test_numerics_do_not_import_matplotlib():
 
     code = ("import sys, kinfit.fit, kinfit.simulate, kinfit.data, kinfit.report, "
             "kinfit.temperature, kinfit.activation, kinfit.two_stage, kinfit.prediction, "
-            "kinfit.compare, kinfit.initial_rates; "
+            "kinfit.compare, kinfit.initial_rates, kinfit.posterior, kinfit.profile, "
+            "kinfit.diagnostics; "
             "print('matplotlib' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
@@ -141,6 +142,32 @@ def test_plot_initial_rates_without_a_regression(small_ranking):
                                                  notes=("no run gave a usable initial rate",)))
     fig = plot_initial_rates(empty)
     assert "no run gave a usable initial rate" in fig.axes[0].texts[0].get_text()
+
+
+def test_plot_corner(line_posterior):
+    post, _ = line_posterior
+    fig = plot_corner(post)
+    assert len(fig.axes) == 4                      # 2 parameters: 2 × 2 panels
+    assert fig.axes[2].get_xlabel() == "k (M s^-1)"
+    assert fig.axes[3].get_xlabel() == "A0_r1 (M)"
+
+
+def test_plot_bands(line_posterior):
+    post, _ = line_posterior
+    fig = plot_bands(post)
+    ax = [a for a in fig.axes if a.get_visible()][0]
+    assert len(ax.collections) == 2                # curve band and predictive band
+    assert [line.get_label() for line in ax.lines] == ["A posterior median", "A data"]
+    assert ax.get_xlabel() == "time (s)"
+
+
+def test_plot_profiles(line_posterior):
+    post, _ = line_posterior
+    fig = plot_profiles(post)
+    axes = [a for a in fig.axes if a.get_visible()]
+    assert [a.get_title() for a in axes] == ["k", "A0_r1"]
+    assert axes[0].get_ylabel() == "Δ deviance"
+    assert len(axes[0].lines) == 2 + 2             # profile, parabola, two thresholds
 
 
 # ---------------------------------------------------------------- spectra

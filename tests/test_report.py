@@ -10,7 +10,8 @@ from conftest import MODELS
 from kinfit.data import load_experiment
 from kinfit.fit import fit
 from kinfit.mechanism import load_mechanism
-from kinfit.report import CAUTIONS, format_fit, format_value, write_fit
+from kinfit.report import (CAUTIONS, format_fit, format_posterior, format_value, write_fit,
+                           write_posterior)
 
 
 @pytest.mark.parametrize("value, se, text", [
@@ -130,6 +131,30 @@ def test_write_ranking(small_ranking, tmp_path):
     assert (tmp_path / "out" / "best" / "fit.png").exists()
     csv = (tmp_path / "out" / "initial_rates.csv").read_text().splitlines()
     assert csv[0] == "run,A0,B0,rate,stderr,note" and len(csv) == 4
+
+
+def test_format_posterior(line_posterior):
+    post, _ = line_posterior
+    text = format_posterior(post)
+    assert text.startswith("Posterior of 'zero order' given 1 runs (11 points)")
+    assert ("NOT CONVERGED" in text) != text.splitlines()[3].startswith("CONVERGED")
+    header = [line for line in text.splitlines() if "covariance 95 %" in line][0]
+    assert header.split() == ["name", "unit", "posterior", "covariance", "95", "%", "profile",
+                              "95", "%", "posterior", "95", "%", "flags"]
+    assert "k: uniform on [0, 1] (from the model file)" in text
+    assert "autocorrelation time τ (steps): k" in text
+    assert " ".join(CAUTIONS.split()[:6]) in " ".join(text.split())
+
+
+def test_write_posterior(line_posterior, tmp_path):
+    post, _ = line_posterior
+    written = write_posterior(tmp_path / "out", post)
+    names = sorted(p.name for p in written)
+    assert names == sorted(["chain.npz", "corner.png", "bands.png", "profiles.png",
+                            "posterior_summary.txt", "posterior.json"])
+    data = json.loads((tmp_path / "out" / "posterior.json").read_text())
+    assert data["parameters"]["k"]["unit"] == "M s^-1"
+    assert not [p for p in (tmp_path / "out").iterdir() if ".part" in p.name]
 
 
 def test_signal_summary_and_files():

@@ -579,3 +579,19 @@ def test_a_closed_system_with_per_run_offsets_is_flagged(tmp_path):
     (tmp_path / "e.toml").write_text(text)
     result = fit(load_experiment(tmp_path / "e.toml"), mech, starts=1)
     assert any("cannot tell apart" in w for w in result.warnings)
+
+
+def test_posterior_with_profiled_absorptivities(tmp_path):
+    # The sampler works through Problem.residuals, so the absorptivities and
+    # the offsets are profiled, not sampled; for this nearly linear problem the
+    # posterior spread of k matches the fit's standard error from the full
+    # Jacobian (Gaussian approximation of the posterior, common practice).
+    from kinfit.posterior import sample
+
+    exp, mech = ab_signal_case(tmp_path)
+    post = sample(exp, mech, walkers=16, steps=600, seed=3, starts=1, profile=False,
+                  bands=False, progress=False)
+    assert not any(name.startswith(("eps_", "offset_", "drift_")) for name in post.names)
+    k = post.samples[:, post.names.index("k")]
+    assert np.std(k) == pytest.approx(post.fit.stderr["k"], rel=0.25)
+    assert abs(np.median(k) - post.fit.values["k"]) < 0.5 * post.fit.stderr["k"]
