@@ -73,6 +73,15 @@ _EXPORTS = {
     "Prediction": "prediction",
     "basis_from_fit": "prediction",
     "format_activation": "report",
+    "read_table": "instrument",
+    "absorbance": "spectra",
+    "significant_components": "spectra",
+    "SignalFit": "spectra",
+    "format_signals": "report",
+    "plot_spectra": "plots",
+    "plot_wavelength_traces": "plots",
+    "plot_residual_map": "plots",
+    "plot_components": "plots",
 }
 
 __all__ = sorted(_EXPORTS) + ["__version__"]

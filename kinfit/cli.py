@@ -75,6 +75,15 @@ def fit_command(
                                        "analysis beside the global fit, with 'free' orders at "
                                        "each temperature, orders fixed at the 'global' fit's "
                                        "values, or 'none'."),
+    components: Optional[str] = typer.Option(
+        None, "--components",
+        help="For full spectra: fit the leading singular vectors the SVD finds significant "
+             "('auto'), a given number of them, or every wavelength ('all'). Overrides the "
+             "experiment file."),
+    wavelengths: Optional[str] = typer.Option(
+        None, "--wavelengths",
+        help="For full spectra: wavelengths to show fitted against measured traces at, "
+             "comma-separated (default: the peak of each resolved spectrum)."),
     report: bool = typer.Option(True, "--report/--no-report",
                                 help="Also write the self-contained report.html."),
 ):
@@ -90,11 +99,19 @@ def fit_command(
     two-stage analysis; temperature.json, arrhenius.png and eyring.png are
     written too.
 
+    When the experiment measures spectrometer signals (a [signals] table),
+    the absorptivities, offsets and drifts are solved along the way and
+    printed with their standard errors; for full spectra the resolved
+    spectra (spectra.csv, spectra.png), traces at chosen wavelengths, a
+    residual map and the SVD of the data (components.png) are written too.
+
     Example:
 
       kinfit fit demo/experiment.toml --model demo/thiol_addition.toml --out results
 
       kinfit fit demo/temperature/experiment.toml --model demo/temperature/ester_hydrolysis.toml --out results
+
+      kinfit fit demo/spectra/spectra.toml --model demo/spectra/dye_formation.toml --wavelengths 420,560 --out results
     """
     with _handled():
         from .data import load_experiment
@@ -104,12 +121,20 @@ def fit_command(
 
         if two_stage not in ("free", "global", "none"):
             raise KinfitError(f"--two-stage {two_stage}: expected free, global or none")
+        chosen = _components(components)
+        picks = _numbers(wavelengths, "--wavelengths")
         exp = load_experiment(experiment)
         mech = load_mechanism(model)
-        result = fit(exp, mech, starts=starts, seed=seed)
+        result = fit(exp, mech, starts=starts, seed=seed, components=chosen)
         files, summary = {}, None
         if mech.temperature is not None:
             files, summary = _temperature_outputs(exp, mech, result, two_stage, seed)
+        if result.signals is not None:
+            from .report import signal_outputs
+
+            more, text = signal_outputs(result, picks)
+            files = {**files, **more}
+            summary = text if summary is None else f"{text}\n\n{summary}"
         written = write_fit(out, result, extra_files=files, extra_summary=summary,
                             provenance=_provenance(exp, mech, seed, {"starts": starts}))
         if report:
@@ -118,6 +143,31 @@ def fit_command(
         if summary:
             typer.echo("\n" + summary)
         typer.echo(f"\nWrote {', '.join(p.name for p in written)} in {out}")
+
+
+def _components(text):
+    """--components: None, "auto", "all" or a whole number."""
+    if text is None or text in ("auto", "all"):
+        return text
+    try:
+        value = int(text)
+    except ValueError:
+        value = 0
+    if value < 1:
+        raise KinfitError(f"--components {text}: expected auto, all or a whole number of at "
+                          f"least 1")
+    return value
+
+
+def _numbers(text, option):
+    """A comma-separated list of numbers, or None."""
+    if not text:
+        return None
+    try:
+        return [float(part) for part in text.split(",") if part.strip()]
+    except ValueError:
+        raise KinfitError(f"{option} {text}: expected numbers separated by commas, like "
+                          f"420,560") from None
 
 
 def _provenance(exp, mech, seed, settings):
@@ -230,10 +280,16 @@ def sample_command(
             from .report import write_fit
 
             exp_used = post.fit.experiment
-            written = write_fit(out, post.fit, provenance=_provenance(
-                exp_used, post.fit.mechanism, seed,
-                {"walkers": walkers, "steps": steps, "noise": noise, "moves": moves,
-                 "starts": starts})) + written
+            files, summary = {}, None
+            if post.fit.signals is not None:    # the solved absorptivities and spectra too
+                from .report import signal_outputs
+
+                files, summary = signal_outputs(post.fit)
+            provenance = _provenance(exp_used, post.fit.mechanism, seed,
+                                     {"walkers": walkers, "steps": steps, "noise": noise,
+                                      "moves": moves, "starts": starts})
+            written = write_fit(out, post.fit, extra_files=files, extra_summary=summary,
+                                provenance=provenance) + written
             written.append(_report(out))
         typer.echo(format_posterior(post))
         typer.echo(f"\nWrote {', '.join(p.name for p in written)} in {out}")
@@ -345,6 +401,39 @@ def _predict(mech, model, initial, overrides, times, units, temperature, tempera
     typer.echo(f"Wrote {', '.join(p.name for p in written)} in {out}")
 
 
+@app.command("components")
+def components_command(
+    experiment: Path = typer.Argument(..., help="Experiment file (TOML) with full spectra."),
+):
+    """How many absorbing components full-spectrum data show, before choosing a model.
+
+    Stacks the spectra of every run (time down, wavelength across), prints the
+    singular values and counts those above the noise (optimal hard threshold
+    of Gavish and Donoho; the noise is the experiment's [signals.spectra]
+    noise, or estimated from the median singular value). A mechanism needs
+    about that many absorbing species; a baseline that differs between runs
+    adds components.
+
+    Example:
+
+      kinfit components demo/spectra/spectra.toml
+    """
+    with _handled():
+        from .data import load_experiment
+        from .report import format_components
+        from .spectra import significant_components, stacked_spectra
+
+        exp = load_experiment(experiment)
+        data = stacked_spectra(exp)
+        if data is None:
+            raise KinfitError(f"{experiment}: no run gives a spectrum file; components are "
+                              f"counted for full-spectrum data")
+        comps = significant_components(data, exp.signals.spectra.noise)
+        typer.echo(f"{len(exp.runs)} run(s), {data.shape[0]} spectra of {data.shape[1]} "
+                   f"wavelengths")
+        typer.echo(format_components(comps))
+
+
 @app.command("demo")
 def demo_command(
     out: Path = typer.Option(Path("kinfit-demo"), "--out", "-o",
@@ -354,7 +443,9 @@ def demo_command(
 
     Writes the demo's model, experiment and synthetic data into OUT/inputs,
     fits them, prints the recovered rate law beside the true values used to
-    make the data, and writes the results into OUT.
+    make the data, and writes the results into OUT. Its spectrometer part
+    (an invented dye synthesis followed by absorbance at one wavelength and
+    by full spectra) goes to OUT/inputs/spectrometer and OUT/spectrometer.
 
     Example:
 
@@ -382,6 +473,42 @@ def demo_command(
                        f"({z:+.1f} standard errors)")
         typer.echo(f"\nInputs in {out / 'inputs'}; results "
                    f"({', '.join(p.name for p in written)}) in {out}")
+        _spectrometer_demo(out)
+
+
+def _spectrometer_demo(out):
+    """The demo's spectrometer part: absorbance at one wavelength, then full spectra."""
+    import textwrap
+
+    from . import demo_spectra
+    from .data import load_experiment
+    from .fit import fit
+    from .mechanism import load_mechanism
+    from .report import format_fit, format_signals, format_value, signal_outputs, write_fit
+
+    typer.echo("\n" + "=" * 88 + "\n" + textwrap.fill(demo_spectra.SCENARIO, 88) + "\n")
+    paths = demo_spectra.write_inputs(out / "inputs" / "spectrometer")
+    mech = load_mechanism(paths["model"])
+    fits = {}
+    for key in ("absorbance", "spectra"):
+        exp = load_experiment(paths[key])
+        result = fit(exp, mech)
+        files, summary = signal_outputs(result)
+        folder = out / "spectrometer" / key
+        write_fit(folder, result, extra_files=files, extra_summary=summary,
+                  provenance=_provenance(exp, mech, 0, {"starts": 8}))
+        _report(folder)
+        fits[key] = result
+        typer.echo(format_fit(result, cautions=False))
+        typer.echo(summary + "\n")
+    typer.echo("Recovered against the true values used to make the data")
+    for name, true, value, se, z in demo_spectra.compare_with_truth(fits["absorbance"],
+                                                                    fits["spectra"]):
+        typer.echo(f"  {name:<24} true {true:<8.4g} fitted {format_value(value, se):<22} "
+                   f"({z:+.1f} standard errors)")
+    typer.echo(f"\nInputs in {out / 'inputs' / 'spectrometer'}; results (with report.html, "
+               f"spectra.csv, spectra.png, wavelength_traces.png, residual_map.png, "
+               f"components.png) in {out / 'spectrometer'}")
 
 
 @app.command("rank")

@@ -8,6 +8,14 @@ are. Two data layouts are read:
   (named by ``[data] file``);
 * wide: one CSV per run with a ``time`` column and one column per species
   (named by the run's ``file``); an empty cell means "not measured then".
+  Wide files are read as instruments write them (see
+  :mod:`kinfit.instrument`: separators, decimal commas, metadata lines, a
+  unit in the time header, a ``run`` column for several runs in one file).
+
+Spectrometer signals (Beer–Lambert channels and full spectra) are declared
+in a ``[signals]`` table, read by :mod:`kinfit.signals`; a run's ``spectrum``
+names its matrix of spectra, ``path_length`` its cell and ``start`` the time
+before which readings are left out.
 
 Every problem is reported with the file, the line and what was expected.
 """
@@ -25,7 +33,9 @@ from pathlib import Path
 import numpy as np
 
 from .errors import KinfitError, KinfitWarning, where
+from .instrument import MAX_MAGNITUDE, check_times, read_table
 from .mechanism import Parameter
+from .signals import parse_path_length, parse_signals, read_spectrum, table_times
 from .sources import decode, find_line, load_toml, resolve_file
 from .units import Units, parse_units, to_kelvin
 
@@ -35,11 +45,12 @@ __all__ = ["Trace", "Run", "Noise", "Experiment", "load_experiment", "initial_na
 ROLE_INITIAL = "initial concentration"
 ROLE_TIME_OFFSET = "time offset"
 MIN_POINTS = 3
-MAX_MAGNITUDE = 1e100   # larger times or values are typing errors, not measurements
 NEGATIVE_NOISE = 0.05   # a reading below -5 % of its trace's largest is not noise around 0
 
-_EXPERIMENT_KEYS = {"name", "description", "units", "data", "noise", "runs", "temperature"}
-_RUN_KEYS = {"name", "temperature", "initial", "file", "time_offset"}
+_EXPERIMENT_KEYS = {"name", "description", "units", "data", "noise", "runs", "temperature",
+                    "signals"}
+_RUN_KEYS = {"name", "temperature", "initial", "file", "time_offset", "path_length", "start",
+             "spectrum"}
 _LONG_COLUMNS = ("run", "time", "species", "value")
 
 
@@ -83,6 +94,13 @@ class Run:
         time), when declared.
     source : str
         The data file.
+    path_length : float or None
+        Path length of the run's cell in cm, for signals (``None``: the
+        ``[signals]`` default).
+    start : float or None
+        Readings before this time were left out (data clock).
+    spectrum : Spectrum or None
+        The run's full spectra (time x wavelength), when given.
     """
 
     name: str
@@ -92,14 +110,21 @@ class Run:
     temperature: float | None = None
     time_offset: Parameter | None = None
     source: str = ""
+    path_length: float | None = None
+    start: float | None = None
+    spectrum: object = None
 
     @property
     def n_points(self):
-        return sum(len(t.times) for t in self.traces)
+        return sum(len(t.times) for t in self.traces) + (
+            self.spectrum.n_points if self.spectrum is not None else 0)
 
     @property
     def t_max(self):
-        return max(float(t.times[-1]) for t in self.traces)
+        ends = [float(t.times[-1]) for t in self.traces]
+        if self.spectrum is not None:
+            ends.append(float(self.spectrum.times[-1]))
+        return max(ends)
 
     @property
     def species(self):
@@ -148,6 +173,8 @@ class Experiment:
         (ordinary least squares).
     source : str
         The experiment file.
+    signals : SignalSpec or None
+        Beer–Lambert channels and spectra (see :mod:`kinfit.signals`).
     """
 
     name: str
@@ -157,6 +184,7 @@ class Experiment:
     source: str = "<experiment>"
     description: str = ""
     data_files: tuple[str, ...] = ()
+    signals: object = None
 
     @property
     def n_points(self):
@@ -237,6 +265,7 @@ def load_experiment(path):
         raise KinfitError(f"{source}: no runs; list each run as\n  [[runs]]\n  name = \"r1\"\n"
                           f"  initial = {{ A = 0.1 }}")
     default_temperature = table.get("temperature")
+    signals = parse_signals(table["signals"], text, source) if "signals" in table else None
     specs = [_parse_run(i, raw, text, source, units, default_temperature)
              for i, raw in enumerate(raw_runs)]
     names = [s["name"] for s in specs]
@@ -263,30 +292,48 @@ def load_experiment(path):
                                  where(source, find_line(text, "file", "data"), "data.file"))
         files.append(str(data_path))
         traces.update(_read_long(data_path, data["file"], set(names),
-                                 {s["name"] for s in specs if s["file"]}))
+                                 {s["name"] for s in specs if s["file"]},
+                                 {s["name"]: s["start"] for s in specs}))
+    spectra = {}
+    channels = set(signals.channels) if signals is not None else set()
     for spec in specs:
         if spec["file"]:
             run_path = resolve_file(spec["file"], "data file", path.parent, spec["where"])
             files.append(str(run_path))
-            traces[spec["name"]] = _read_wide(run_path, spec["file"])
+            traces[spec["name"]] = _read_wide(run_path, spec["file"], units, channels,
+                                              spec["name"], spec["start"])
+        if spec["spectrum"]:
+            if signals is None or signals.spectra is None:
+                raise KinfitError(f"{spec['where']}: run {spec['name']!r} gives a spectrum "
+                                  f"but the experiment has no [signals.spectra] table saying "
+                                  f"which species absorb")
+            spec_path = resolve_file(spec["spectrum"], "spectrum file", path.parent,
+                                     spec["where"])
+            files.append(str(spec_path))
+            spectra[spec["name"]] = read_spectrum(spec_path, spec["spectrum"], units.time,
+                                                  spec["name"], spec["start"])
     runs = []
     for spec in specs:
-        run_traces = traces.get(spec["name"])
-        if not run_traces:
+        run_traces = traces.get(spec["name"], [])
+        spectrum = spectra.get(spec["name"])
+        if not run_traces and spectrum is None:
             raise KinfitError(f"{spec['where']}: run {spec['name']!r} has no data; give it "
                               f"file = \"...\" (wide layout) or add its rows to the [data] file")
-        n_points = sum(len(t.times) for t in run_traces)
+        n_points = sum(len(t.times) for t in run_traces) + (
+            spectrum.n_points if spectrum is not None else 0)
         if n_points < MIN_POINTS:
             raise KinfitError(f"{spec['where']}: run {spec['name']!r} has {n_points} data "
                               f"point(s); at least {MIN_POINTS} are needed")
         runs.append(Run(name=spec["name"], traces=tuple(run_traces), initial=spec["initial"],
                         fitted_initial=spec["fitted"], temperature=spec["temperature"],
                         time_offset=spec["offset"], source=spec["source"] or (
-                            files[0] if files else "")))
+                            files[0] if files else ""),
+                        path_length=spec["path_length"], start=spec["start"],
+                        spectrum=spectrum))
 
     experiment = Experiment(name=name, runs=tuple(runs), units=units, source=source,
                             description=str(table.get("description", "")),
-                            data_files=tuple(files))
+                            data_files=tuple(files), signals=signals)
     noise = _parse_noise(table.get("noise"), text, source, experiment)
     return Experiment(**{**experiment.__dict__, "noise": noise})
 
@@ -362,8 +409,19 @@ def _parse_run(index, raw, text, source, units, default_temperature):
     file = raw.get("file")
     if file is not None and not isinstance(file, str):
         raise KinfitError(f"{loc} (file): expected a file name")
+    spectrum = raw.get("spectrum")
+    if spectrum is not None and not isinstance(spectrum, str):
+        raise KinfitError(f"{loc} (spectrum): expected a file name")
+    path_length = None
+    if "path_length" in raw:
+        path_length = parse_path_length(raw["path_length"], f"{loc} (path_length)")
+    start = raw.get("start")
+    if start is not None and (isinstance(start, bool) or not isinstance(start, (int, float))
+                              or not math.isfinite(start)):
+        raise KinfitError(f"{loc} (start): expected a time in {units.time}, got {start!r}")
     return dict(name=name, where=loc, temperature=temperature, initial=initial, fitted=fitted,
-                offset=offset, file=file, source=file)
+                offset=offset, file=file, source=file or spectrum, spectrum=spectrum,
+                path_length=path_length, start=None if start is None else float(start))
 
 
 def _fitted(pname, spec, loc, role, lower=-math.inf):
@@ -514,18 +572,7 @@ def _numbers(column, lines, shown, label, allow_blank=False):
 
 
 def _check_times(times, lines, shown, what):
-    if times.size and times.min() < 0:
-        i = int(np.flatnonzero(times < 0)[0])
-        raise KinfitError(f"{shown}, line {lines[i]}: negative time {times[i]:g} ({what}); "
-                          f"times are measured from the start of the reaction")
-    steps = np.diff(times)
-    if (steps <= 0).any():
-        i = int(np.flatnonzero(steps <= 0)[0]) + 1
-        if steps[i - 1] == 0:
-            raise KinfitError(f"{shown}, line {lines[i]}: time {times[i]:g} is repeated "
-                              f"({what}, also at line {lines[i - 1]})")
-        raise KinfitError(f"{shown}, line {lines[i]}: time is not increasing ({what}: "
-                          f"t={times[i]:g} after t={times[i - 1]:g})")
+    check_times(times, lines, shown, what)
 
 
 def _fast_long(path):
@@ -572,7 +619,7 @@ def _fast_long(path):
     return runs, times, species, values, np.arange(2, len(frame) + 2)
 
 
-def _read_long(path, shown, listed, own_file):
+def _read_long(path, shown, listed, own_file, starts=None):
     fast = _fast_long(path)
     if fast is not None:
         runs, times, species, values, lines = fast
@@ -589,6 +636,9 @@ def _read_long(path, shown, listed, own_file):
             raise KinfitError(f"{shown}, line {lines[rows[0]]}: run {run!r} has its own data "
                               f"file too; give each run's data once")
         traces = []
+        start = (starts or {}).get(run)
+        if start is not None:
+            rows = rows[times[rows] >= start]
         for sp in dict.fromkeys(species[rows]):
             sel = rows[species[rows] == sp]
             _check_times(times[sel], lines[sel], shown, f"run {run!r}, {sp}")
@@ -626,31 +676,33 @@ def _careful_long(path, shown):
     return runs, times, species, values, lines
 
 
-def _read_wide(path, shown):
-    frame = _read_csv(path, shown)
-    lower = [c.lower() for c in frame.columns]
-    if "time" not in lower:
-        raise KinfitError(f"{shown}, line 1: no 'time' column; the wide layout has a time "
-                          f"column and one column per species (found: "
-                          f"{', '.join(frame.columns)})")
-    if len(frame.columns) < 2:
-        raise KinfitError(f"{shown}, line 1: only a time column; add one column per "
-                          f"measured species")
-    lines = np.arange(2, len(frame) + 2)
-    blank_row = (frame.fillna("").apply(lambda c: c.astype(str).str.strip()) == "").all(axis=1)
-    frame, lines = frame[~blank_row.to_numpy()], lines[~blank_row.to_numpy()]
-    if not len(frame):
-        raise KinfitError(f"{shown}: the data file has a header but no data rows")
-    time_col = frame.columns[lower.index("time")]
-    times, _ = _numbers(frame[time_col], lines, shown, "time")
-    _check_times(times, lines, shown, "time column")
+def _read_wide(path, shown, units, channels=(), run=None, start=None):
+    """A run's wide table (see :mod:`kinfit.instrument`): a time column and one
+    column per species or signal channel; an empty cell means not measured."""
+    from .units import check_unit, conversion_factor
+
+    table = read_table(path, shown)
+    rows, times = table_times(table, units.time, run, start)
+    t_col, run_col = table.index("time"), table.index("run")
+    columns = [c for c in range(len(table.names)) if c not in (t_col, run_col)]
+    if not columns:
+        raise KinfitError(f"{shown}, line {table.header_line}: only a time column; add one "
+                          f"column per measured species")
     traces = []
-    for col in frame.columns:
-        if col == time_col:
-            continue
-        values, blank = _numbers(frame[col], lines, shown, col, allow_blank=True)
+    lines = table.lines[rows]
+    for c in columns:
+        name, unit = table.names[c], table.units[c]
+        values, blank = table.numbers(c, rows=rows, allow_blank=True)
+        if unit and name not in channels:
+            loc = f"{shown}, line {table.header_line} (column {name!r})"
+            check_unit(unit, "concentration", loc)
+            try:
+                values = values * conversion_factor(unit, units.concentration)
+            except Exception:   # pint: molar and mass concentrations do not convert
+                raise KinfitError(f"{loc}: {unit} cannot be converted to the experiment's "
+                                  f"{units.concentration}") from None
         keep = ~blank
         if keep.any():
-            traces.append(Trace(col, times[keep], values[keep], lines[keep]))
+            traces.append(Trace(name, times[keep], values[keep], lines[keep]))
             _warn_negative(traces[-1], shown)
     return traces

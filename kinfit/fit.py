@@ -73,6 +73,8 @@ class FitResult:
     predicted : ndarray [n_points]
         Model values at the data points.
     n_points, n_free : int
+        Data points and fitted parameters (the linear unknowns of signals
+        included; see `signals`).
     chi2 : float
         Sum of squared residuals.
     sigma : float or None
@@ -92,6 +94,11 @@ class FitResult:
         Model evaluations (parameter sets), integrator calls, failed sets.
     method : str
         Integrator used.
+    signals : SignalFit or None
+        For spectrometer signals: absorptivities, offsets and drifts solved
+        by variable projection with standard errors from the full Jacobian,
+        resolved spectra and the SVD of full-spectrum data (see
+        :mod:`kinfit.spectra`).
     """
 
     mechanism: object
@@ -127,6 +134,7 @@ class FitResult:
     method: str = "auto"
     at_bounds: tuple = ()
     bounds: dict = field(default_factory=dict, repr=False)
+    signals: object = None
 
     @property
     def reduced_chi2(self):
@@ -221,6 +229,7 @@ class FitResult:
                     "evaluations": self.n_evaluations, "integrations": self.n_integrations,
                     "failed_evaluations": self.n_failed, "integrator": self.method},
             "warnings": list(self.warnings),
+            "signals": None if self.signals is None else self.signals.to_dict(),
             "residual_checks": [c.to_dict() for c in check_residuals(self)],
         }
 
@@ -325,7 +334,7 @@ class _Evaluator:
 # -------------------------------------------------------------------- fit
 
 def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="auto",
-        max_evaluations=None):
+        max_evaluations=None, components=None):
     """Fit `mechanism` to all runs of `experiment` at once.
 
     Parameters
@@ -342,6 +351,9 @@ def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="auto",
         "auto": compiled explicit, LSODA where stiff).
     max_evaluations : int, optional
         Bound on residual evaluations per start (default 100 (p + 1)).
+    components : int or str, optional
+        For full-spectrum data, overrides the experiment's ``components``
+        ("auto", "all" or a number of singular vectors to fit).
 
     Returns
     -------
@@ -349,15 +361,15 @@ def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="auto",
     """
     if not isinstance(starts, int) or starts < 1:
         raise KinfitError(f"starts must be a whole number of at least 1, got {starts!r}")
-    problem = build_problem(mechanism, experiment, method=method)
+    problem = build_problem(mechanism, experiment, method=method, components=components)
     layout = _Layout(problem)
     evaluator = _Evaluator(problem, layout)
-    n_points, n_free = problem.observation.n_points, len(layout.free)
+    n_points, n_free = problem.observation.n_points, len(layout.free) + problem.n_linear
     if n_free >= n_points:
         raise KinfitError(f"{experiment.source}: {n_free} fitted parameters but only {n_points} "
                           f"data points; fix some parameters or add data")
 
-    if n_free == 0:
+    if not layout.free:
         outcomes = [(layout.u0, float(np.sum(evaluator.residuals(layout.u0)[0] ** 2)), True,
                      "no free parameters: evaluated at the given values", 0)]
     else:
@@ -418,7 +430,7 @@ def _local_fit(evaluator, u0, max_evaluations):
     failed_before = evaluator.failed
     u = np.clip(np.asarray(u0, dtype=float), lo, hi)
     n = u.size
-    dof = max(evaluator.problem.observation.n_points - n, 1)
+    dof = max(evaluator.problem.observation.n_points - n - evaluator.problem.n_linear, 1)
     max_evaluations = max_evaluations or 100 * (n + 1)
     res, jac = evaluator.both(u)
     chi2 = float(res @ res)
@@ -446,6 +458,9 @@ def _local_fit(evaluator, u0, max_evaluations):
             break
         diag = np.diag(nf).copy()
         diag[diag <= 0] = 1.0
+        # a direction the data do not see (a parameter whose effect the linear
+        # unknowns of signals take up) must not get an unbounded step
+        diag = np.maximum(diag, 1e-10 * diag.max())
         try:
             step_f = np.linalg.solve(nf + damping * np.diag(diag), -gf)
         except np.linalg.LinAlgError:
@@ -517,7 +532,7 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
         res, jac = evaluator.residuals(u)[0], None
     pred = res * problem.observation.sigma if problem.sigma_known else res.copy()
     pred = pred + problem.observation.values
-    n_points, n_free = res.size, len(layout.free)
+    n_points, n_free = res.size, len(layout.free) + problem.n_linear
     chi2 = float(res @ res)
     declared = problem.sigma_known
     dof = n_points - n_free
@@ -529,7 +544,9 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
     at_bounds = tuple(n for n, x, a, b in zip(layout.names, u, layout.lo, layout.hi)
                       if (math.isfinite(a) and x - a <= 1e-6 * max(1.0, abs(a)))
                       or (math.isfinite(b) and b - x <= 1e-6 * max(1.0, abs(b))))
-    if n_free:
+    if layout.free:
+        if problem.signal is not None:
+            jac = _kaufman_jacobian(problem, layout, u)
         covariance, singular = _covariance(jac, layout.natural_slope(u),
                                            1.0 if declared else chi2 / dof, layout.names)
         if singular:
@@ -559,6 +576,11 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
         elif chi2_dist.cdf(chi2, dof) < 1e-3:
             warnings.append(f"χ²/(N−p) = {chi2 / dof:.3g}: the residuals are smaller than the "
                             f"declared noise; the noise may be overestimated")
+    signals = None
+    if problem.signal is not None:
+        signals = problem.signal.resolve(problem, values_row, covariance, layout.free,
+                                         1.0 if declared else chi2 / dof)
+        warnings += list(signals.warnings)
     if failed:
         warnings.append(f"{failed} model evaluation(s) failed to integrate on the way to the "
                         f"best fit and were treated as very poor fits")
@@ -597,7 +619,19 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
         n_evaluations=evaluator.evaluations, n_integrations=evaluator.integrations,
         n_failed=evaluator.failed, method=_integrator_text(problem.method, evaluator),
         at_bounds=at_bounds,
-        bounds={p.name: (p.min, p.max, p.vary) for p in problem.parameters})
+        bounds={p.name: (p.min, p.max, p.vary) for p in problem.parameters}, signals=signals)
+
+
+def _kaufman_jacobian(problem, layout, u):
+    """Fitting-scale Jacobian with Kaufman's projection for signals: its JᵀJ is the
+    Schur complement of the full normal matrix of the kinetic parameters and the
+    linear unknowns, so the covariance is that of the full Jacobian (see
+    :mod:`kinfit.spectra`)."""
+    from dataclasses import replace
+
+    plain = replace(problem, signal=problem.signal.kaufman())
+    jac = plain.residuals_jacobian(layout.to_values(u))[1]
+    return jac[:, layout.free] * layout.natural_slope(u)[None, :]
 
 
 def _integrator_text(method, evaluator):

@@ -310,8 +310,27 @@ def _spectra(folder, data):
     spectra = data["spectra"]
     if not spectra:
         return []
-    return [_figure(folder, "spectra", "Resolved spectrum of each species."),
-            _figure(folder, "residual_map", "Residuals over time and wavelength.")]
+    blocks = []
+    coefficients = spectra.get("coefficients") or {}
+    if coefficients:
+        rows = [[name, _num(c.get("value")), _num(c.get("stderr"), 2), c.get("unit", ""),
+                 c.get("kind", "")] for name, c in coefficients.items()]
+        blocks.append(_text("text", "Absorptivities, offsets and drifts solved by linear "
+                                         "least squares in every evaluation (variable "
+                                         "projection); standard errors from the full "
+                                         "Jacobian."))
+        blocks.append(_table(["coefficient", "value", "standard error", "unit", "kind"], rows))
+    components = spectra.get("components")
+    if components:
+        used = components.get("n_used")
+        blocks.append(_text("text", f"SVD of the spectra: {components['n_significant']} "
+                                         f"significant component(s)"
+                            + (f"; the fit used the leading {used}" if used else "")))
+    return blocks + [
+        _figure(folder, "spectra", "Resolved spectrum of each species."),
+        _figure(folder, "wavelength_traces", "Fitted against measured at chosen wavelengths."),
+        _figure(folder, "residual_map", "Residuals over time and wavelength."),
+        _figure(folder, "components", "Singular values of the spectra and the threshold.")]
 
 
 def _temperature(folder, data):

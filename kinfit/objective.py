@@ -33,6 +33,7 @@ import numpy as np
 
 from .errors import KinfitError
 from .observables import build_observation, observe
+from .spectra import build_signal_model
 from .compiled import KIND_INITIAL, KIND_LOG_K, KIND_ORDER
 from .mechanism import rates as rates_fn
 from .simulate import ATOL, MAX_RHS_CALLS, RTOL, integrate_flat, simulate_runs
@@ -64,6 +65,13 @@ class Problem:
     temperature : TemperatureLayout or None
         Each run's temperature group and T_ref, when the model's rate
         constants depend on temperature (see :mod:`kinfit.temperature`).
+    signal : SignalModel or None
+        When the experiment measures spectrometer signals: how
+        concentrations become signals, with the linear unknowns
+        (absorptivities, offsets, drifts) profiled out by variable projection
+        in every evaluation (see :mod:`kinfit.spectra`). ``observation`` then
+        holds the measured points and ``points`` the concentrations the model
+        is evaluated at.
     """
 
     mechanism: object
@@ -75,6 +83,8 @@ class Problem:
     atol: float = ATOL
     max_rhs: int = MAX_RHS_CALLS
     temperature: object = None
+    signal: object = None
+    _points: object = field(default=None, repr=False)
     _conc0: np.ndarray = field(default=None, repr=False)
     _initial_map: tuple = field(default=(), repr=False)
     _offset_map: tuple = field(default=(), repr=False)
@@ -92,6 +102,17 @@ class Problem:
     @property
     def sigma_known(self):
         return self.observation.sigma is not None
+
+    @property
+    def points(self):
+        """The concentration points the model is evaluated at (the observation,
+        unless signals map concentrations onto measured points)."""
+        return self._points if self._points is not None else self.observation
+
+    @property
+    def n_linear(self):
+        """Linear unknowns solved inside each evaluation (0 without signals)."""
+        return 0 if self.signal is None else self.signal.n_linear
 
     def values_array(self, values):
         """Parameter sets as an array [n_sets, n_params].
@@ -259,12 +280,14 @@ class Problem:
                              max_rhs=max_rhs or self.max_rhs,
                              sens=lay["sens"] if jacobian else None, fallback=fallback,
                              extents=self.mechanism.extents)
-        species = self.observation.species_index
+        species = self.points.species_index
         pred = sol.conc[rows, species[None, :]]
         ok = sol.ok.reshape(n_sets, n_runs).all(axis=1)
         dpred = None
         if jacobian:
             dpred = self._chain_rule(values, rates, sol, rows, t_out)
+        if self.signal is not None:
+            pred, dpred = self.signal.project(pred, dpred, ok)
         return pred, ok, dpred, sol
 
     def _chain_rule(self, values, rates, sol, rows, t_out):
@@ -272,8 +295,8 @@ class Problem:
         lay = self._layout
         n_sets = values.shape[0]
         n_runs = len(self._times)
-        species = self.observation.species_index
         run_of_point = lay["run_of_point"]
+        species = self.points.species_index
         dq = np.repeat(lay["dq_static"][None], n_sets, axis=0)     # [sets, runs, q, params]
         dlnk = self.log_rate_derivatives(values)
         for r in range(n_runs):
@@ -285,7 +308,7 @@ class Problem:
             for r, p in enumerate(self._offset_map):
                 if p < 0:
                     continue
-                sl = self.observation.run_slices[r]
+                sl = self.points.run_slices[r]
                 k_r, e_r = rates[r]
                 for s_i in range(n_sets):
                     conc = sol.conc[rows[s_i, sl]]
@@ -364,8 +387,18 @@ class Problem:
             jac = np.zeros_like(jac)
         return res, jac, bool(ok[0]), info
 
-def build_problem(mechanism, experiment, method="auto"):
+def build_problem(mechanism, experiment, method="auto", components=None):
     """Join `mechanism` and `experiment` into a :class:`Problem`.
+
+    Parameters
+    ----------
+    mechanism : Mechanism
+    experiment : Experiment
+    method : str
+        Integrator (see :func:`kinfit.simulate.integrate_flat`).
+    components : int or str, optional
+        For full-spectrum data: overrides the experiment's ``components``
+        ("auto", "all" or a number; see :mod:`kinfit.spectra`).
 
     Raises
     ------
@@ -373,7 +406,11 @@ def build_problem(mechanism, experiment, method="auto"):
         If the data name species the model lacks, or per-run parameter names
         collide with the model's.
     """
-    observation = build_observation(mechanism, experiment)
+    signal = None
+    if getattr(experiment, "signals", None) is not None:
+        observation, points, signal = build_signal_model(mechanism, experiment, components)
+    else:
+        observation = points = build_observation(mechanism, experiment)
     species = {s: i for i, s in enumerate(mechanism.species)}
     parameters = list(mechanism.parameters.values())
     names = set(mechanism.parameters)
@@ -399,10 +436,10 @@ def build_problem(mechanism, experiment, method="auto"):
             [run.name for run in experiment.runs])
     return Problem(mechanism=mechanism, experiment=experiment, observation=observation,
                    parameters=tuple(parameters), method=method, temperature=temperature,
-                   _conc0=conc0,
+                   signal=signal, _points=points, _conc0=conc0,
                    _initial_map=tuple(initial_map), _offset_map=tuple(offset_map),
-                   _times=observation.run_times,
-                   _layout=_flat_layout(mechanism, observation, len(parameters), initial_map,
+                   _times=points.run_times,
+                   _layout=_flat_layout(mechanism, points, len(parameters), initial_map,
                                         offset_map))
 
 

@@ -1,7 +1,9 @@
 """Mapping the model's concentrations onto what was measured.
 
-For now every measured column is the concentration of one species of the
-model. :func:`build_observation` flattens all traces of all runs into one
+Every measured column is the concentration of one species of the model,
+or a spectrometer signal channel declared in the experiment's ``[signals]``
+table (mapped onto concentrations by :mod:`kinfit.spectra`; its points get
+species index -1 here). :func:`build_observation` flattens all traces of all runs into one
 vector of data points and remembers, for each point, its run, its time on
 that run's grid and its species; :func:`observe` picks the model's values at
 those places. The same order of points is used for residuals, Jacobians and
@@ -66,9 +68,11 @@ def check_compatible(mechanism, experiment):
     """
     species = set(mechanism.species)
     listing = ", ".join(mechanism.species)
+    signals = getattr(experiment, "signals", None)
+    channels = set(signals.channels) if signals is not None else set()
     for run in experiment.runs:
         for trace in run.traces:
-            if trace.species not in species:
+            if trace.species not in species and trace.species not in channels:
                 raise KinfitError(
                     f"{run.source}, line {trace.lines[0]}: species {trace.species!r} (run "
                     f"{run.name!r}) is not in the model '{mechanism.name}' ({mechanism.source});"
@@ -98,13 +102,13 @@ def build_observation(mechanism, experiment):
     time_index, species_index, values, sigma = [], [], [], []
     start = 0
     for r, run in enumerate(experiment.runs):
-        grid = np.unique(np.concatenate([t.times for t in run.traces]))
+        grid = np.unique(np.concatenate([t.times for t in run.traces] or [np.empty(0)]))
         run_times.append(grid)
         run_start = start
         for trace in run.traces:
             n = trace.times.size
             time_index.append(np.searchsorted(grid, trace.times))
-            species_index.append(np.full(n, index[trace.species]))
+            species_index.append(np.full(n, index.get(trace.species, -1)))
             values.append(trace.values)
             s = experiment.sigma(trace)
             if s is not None:
@@ -112,11 +116,13 @@ def build_observation(mechanism, experiment):
             traces.append((r, trace.species, slice(start, start + n)))
             start += n
         run_slices.append(slice(run_start, start))
+    empty = [np.empty(0, dtype=int)]
     return Observation(
         run_times=tuple(run_times), run_slices=tuple(run_slices),
-        time_index=np.concatenate(time_index), species_index=np.concatenate(species_index),
-        values=np.concatenate(values), sigma=np.concatenate(sigma) if sigma else None,
-        traces=tuple(traces))
+        time_index=np.concatenate(time_index or empty),
+        species_index=np.concatenate(species_index or empty),
+        values=np.concatenate(values or [np.empty(0)]),
+        sigma=np.concatenate(sigma) if sigma else None, traces=tuple(traces))
 
 
 def observe(conc_by_run, observation):

@@ -18,7 +18,8 @@ from matplotlib.figure import Figure
 
 __all__ = ["plot_traces", "plot_residuals", "plot_trajectory", "plot_arrhenius",
            "plot_eyring", "plot_prediction", "plot_weights", "plot_initial_rates", "plot_corner",
-           "plot_bands", "plot_profiles", "PALETTE"]
+           "plot_bands", "plot_profiles", "plot_spectra", "plot_wavelength_traces",
+           "plot_residual_map", "plot_components", "PALETTE"]
 
 PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#F0E442",
            "#000000")
@@ -65,20 +66,56 @@ def plot_traces(result, fig=None):
     measured = exp.species
     style = _style(list(measured) + [s for s in mech.species if s not in measured])
     fig, axes = _grid(fig, len(exp.runs))
+    signals = getattr(result, "signals", None)
     for ax, run, curve in zip(axes, exp.runs, result.curves):
         for trace in run.traces:
             color, marker = style[trace.species]
             ax.plot(trace.times, trace.values, linestyle="none", marker=marker, markersize=3.5,
                     color=color, alpha=0.8, label=f"{trace.species} data")
-            ax.plot(curve.times, curve[trace.species], color=color, lw=1.6,
-                    label=f"{trace.species} fit")
+            fitted = (curve[trace.species] if trace.species in curve.species
+                      else signals.curve(run.name, trace.species, curve))
+            ax.plot(curve.times, fitted, color=color, lw=1.6, label=f"{trace.species} fit")
+        if run.spectrum is not None and signals is not None and signals.spectra is not None:
+            _spectrum_panel(ax, signals.spectra, run)
         ax.set_title(_initial_text(run, units), fontsize=9)
         ax.set_xlabel(f"time ({units.time})")
-        ax.set_ylabel(f"concentration ({units.concentration})")
-    if len(axes):
-        axes[0].legend(fontsize=7, frameon=False)
+        measured = {t.species in curve.species for t in run.traces}
+        ax.set_ylabel(f"concentration ({units.concentration})" if measured == {True} else
+                      "signal" if not run.traces or measured == {False}
+                      else "concentration or signal")
+    _legend(axes)
     fig.suptitle(f"{mech.name}: data and global fit", fontsize=11)
     return fig
+
+
+def _legend(axes):
+    """A legend on the first panel that has labelled lines."""
+    for ax in axes:
+        if ax.get_legend_handles_labels()[0]:
+            ax.legend(fontsize=7, frameon=False)
+            return
+
+
+def _spectrum_panel(ax, spectra, run, scale=None):
+    """Full-spectrum data of one run at the peak wavelengths: data and fit, or with a
+    `scale` the residuals (fit − data)/scale."""
+    from .spectra import choose_wavelengths
+
+    fitted = spectra.fitted[spectra.runs.index(run.name)]
+    picks = choose_wavelengths(spectra)
+    style = _style([f"{w:g}" for w in picks])
+    for w in picks:
+        col = int(np.argmin(np.abs(spectra.wavelengths - w)))
+        label = f"{w:g} {spectra.wavelength_unit}"
+        color, marker = style[f"{w:g}"]
+        data = run.spectrum.values[:, col]
+        if scale is not None:
+            ax.plot(run.spectrum.times, (fitted[:, col] - data) / scale, linestyle="none",
+                    marker=marker, markersize=3, color=color, label=label)
+            continue
+        ax.plot(run.spectrum.times, data, linestyle="none", marker=marker, markersize=3,
+                color=color, alpha=0.7, label=f"{label} data")
+        ax.plot(run.spectrum.times, fitted[:, col], color=color, lw=1.5, label=f"{label} fit")
 
 
 def plot_residuals(result, fig=None):
@@ -104,6 +141,11 @@ def plot_residuals(result, fig=None):
             color, marker = style[trace.species]
             ax.plot(trace.times, res, linestyle="none", marker=marker, markersize=3.5,
                     color=color, label=trace.species)
+        signals = getattr(result, "signals", None)
+        if run.spectrum is not None and signals is not None and signals.spectra is not None:
+            declared = exp.signals.spectra.noise
+            _spectrum_panel(ax, signals.spectra, run,
+                            scale=declared if result.noise_declared else 1.0)
         ax.axhline(0.0, color="0.3", lw=0.8)
         if band:
             ax.axhspan(-band, band, color="0.85", zorder=0)
@@ -111,8 +153,7 @@ def plot_residuals(result, fig=None):
         ax.set_xlabel(f"time ({exp.units.time})")
         ax.set_ylabel("(fit − data)/σ" if result.noise_declared
                       else f"fit − data ({exp.units.concentration})")
-    if len(axes):
-        axes[0].legend(fontsize=7, frameon=False)
+    _legend(axes)
     fig.suptitle("residuals (grey band: ±2σ)", fontsize=11)
     return fig
 
@@ -524,4 +565,141 @@ def plot_profiles(posterior, fig=None):
         ax.set_title(name if p.closed else f"{name}: does not close", fontsize=9)
     axes[0].legend(fontsize=7, frameon=False)
     fig.suptitle("profile likelihood", fontsize=11)
+    return fig
+
+
+# ---------------------------------------------------------------- spectra
+
+def plot_spectra(spectra, fig=None):
+    """Resolved species spectra with ±2 standard-error bands.
+
+    Parameters
+    ----------
+    spectra : ResolvedSpectra
+    fig : matplotlib.figure.Figure, optional
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    if fig is None:
+        fig = Figure(figsize=(6.5, 4.2), layout="constrained")
+    ax = fig.subplots()
+    style = _style(spectra.species)
+    wl = spectra.wavelengths
+    for i, species in enumerate(spectra.species):
+        color = style[species][0]
+        ax.plot(wl, spectra.values[i], color=color, lw=1.8, label=species)
+        se = spectra.stderr[i]
+        if np.isfinite(se).any():
+            ax.fill_between(wl, spectra.values[i] - 2 * se, spectra.values[i] + 2 * se,
+                            color=color, alpha=0.2, lw=0)
+    ax.axhline(0.0, color="0.5", lw=0.6)
+    ax.set_xlabel(f"wavelength ({spectra.wavelength_unit})")
+    ax.set_ylabel(f"absorptivity ({spectra.unit})" if spectra.unit else "absorptivity")
+    ax.set_title("resolved spectra (bands: ±2 standard errors)", fontsize=10)
+    ax.legend(fontsize=8, frameon=False)
+    return fig
+
+
+def plot_wavelength_traces(result, wavelengths, fig=None):
+    """Measured and fitted full-spectrum data at chosen wavelengths, one panel per run.
+
+    Parameters
+    ----------
+    result : FitResult
+        With resolved spectra.
+    wavelengths : sequence of float
+        Wavelengths to show (those of the data).
+    fig : matplotlib.figure.Figure, optional
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    spectra = result.signals.spectra
+    runs = [r for r in result.experiment.runs if r.name in spectra.runs]
+    fig, axes = _grid(fig, len(runs))
+    labels = [f"{w:g} {spectra.wavelength_unit}" for w in wavelengths]
+    style = _style(labels)
+    columns = [int(np.argmin(np.abs(spectra.wavelengths - w))) for w in wavelengths]
+    for ax, run in zip(axes, runs):
+        fitted = spectra.fitted[spectra.runs.index(run.name)]
+        data = run.spectrum
+        for label, col in zip(labels, columns):
+            color, marker = style[label]
+            ax.plot(data.times, data.values[:, col], linestyle="none", marker=marker,
+                    markersize=3, color=color, alpha=0.7, label=f"{label} data")
+            ax.plot(data.times, fitted[:, col], color=color, lw=1.5, label=f"{label} fit")
+        ax.set_title(_initial_text(run, result.experiment.units), fontsize=9)
+        ax.set_xlabel(f"time ({result.experiment.units.time})")
+        ax.set_ylabel("signal")
+    if len(axes):
+        axes[0].legend(fontsize=7, frameon=False)
+    fig.suptitle("full spectra at chosen wavelengths: data and global fit", fontsize=11)
+    return fig
+
+
+def plot_residual_map(result, fig=None):
+    """Residuals (fit − data) of full-spectrum data as time × wavelength maps, per run.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    spectra = result.signals.spectra
+    runs = [r for r in result.experiment.runs if r.name in spectra.runs]
+    maps = [spectra.fitted[spectra.runs.index(r.name)] - r.spectrum.values for r in runs]
+    limit = max(float(np.max(np.abs(m))) for m in maps) or 1.0
+    fig, axes = _grid(fig, len(runs))
+    wl = spectra.wavelengths
+    image = None
+    for ax, run, res in zip(axes, runs, maps):
+        times = run.spectrum.times
+        image = ax.pcolormesh(wl, times, res, cmap="RdBu_r", vmin=-limit, vmax=limit,
+                              shading="nearest")
+        ax.set_title(run.name, fontsize=9)
+        ax.set_xlabel(f"wavelength ({spectra.wavelength_unit})")
+        ax.set_ylabel(f"time ({result.experiment.units.time})")
+    if image is not None:
+        fig.colorbar(image, ax=list(axes), label="fit − data", shrink=0.8)
+    fig.suptitle("residual map: structure here means the model misses something", fontsize=11)
+    return fig
+
+
+def plot_components(components, n_absorbers=None, fig=None):
+    """Singular values of the stacked spectra with the significance threshold.
+
+    Parameters
+    ----------
+    components : Components
+    n_absorbers : int, optional
+        Absorbing species of the model, marked for comparison.
+    fig : matplotlib.figure.Figure, optional
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    if fig is None:
+        fig = Figure(figsize=(6.0, 4.0), layout="constrained")
+    ax = fig.subplots()
+    s = components.singular_values[:min(30, components.singular_values.size)]
+    index = np.arange(1, s.size + 1)
+    significant = s > components.threshold
+    ax.semilogy(index[significant], s[significant], "o", color=PALETTE[0],
+                label=f"significant ({components.n_significant})")
+    ax.semilogy(index[~significant], s[~significant], "o", mfc="none", color="0.4",
+                label="noise")
+    ax.axhline(components.threshold, color=PALETTE[1], ls="--", lw=1.2, label="threshold")
+    if components.n_used is not None:
+        ax.axvline(components.n_used + 0.5, color=PALETTE[2], lw=1.0,
+                   label=f"fitted: first {components.n_used}")
+    if n_absorbers is not None:
+        ax.axvline(n_absorbers + 0.5, color=PALETTE[3], ls=":", lw=1.2,
+                   label=f"model: {n_absorbers} absorbing species")
+    ax.set_xlabel("component")
+    ax.set_ylabel("singular value")
+    ax.set_title("SVD of the spectra", fontsize=10)
+    ax.legend(fontsize=8, frameon=False)
     return fig

@@ -20,7 +20,8 @@ from .errors import KinfitError
 __all__ = ["CAUTIONS", "format_value", "format_fit", "write_fit", "write_simulation",
            "figure_bytes", "temperature_cautions", "format_activation", "temperature_outputs",
            "format_prediction", "write_prediction", "format_ranking", "format_cross_check",
-           "write_ranking", "format_posterior", "write_posterior"]
+           "write_ranking", "format_posterior", "write_posterior", "format_signals",
+           "signal_outputs", "format_components"]
 
 CAUTIONS = (
     "A rate law and its rate constants hold only over the conditions they were measured "
@@ -92,9 +93,13 @@ def format_fit(result, cautions=True):
                      + flag))
     out += _table(rows, ("name", "value ± standard error", "unit", "role"))
     out.append("")
+    noise_unit = exp.units.concentration
+    if getattr(result, "signals", None) is not None:
+        noise_unit = "(concentration or signal units)" if any(
+            t.species in mech.species for r in exp.runs for t in r.traces) else (
+            result.signals.unit or "(signal units)")
     noise = ("declared noise" if result.noise_declared
-             else f"noise estimated from the fit: σ = {result.sigma:.3g} "
-                  f"{exp.units.concentration}")
+             else f"noise estimated from the fit: σ = {result.sigma:.3g} {noise_unit}")
     out.append(f"Fit: χ² = {result.chi2:.6g}, N = {result.n_points}, p = {result.n_free}, "
                f"χ²/(N−p) = {result.reduced_chi2:.3g} ({noise})")
     out.append(f"     AIC = {result.aic:.6g}, AICc = {result.aicc:.6g}, BIC = {result.bic:.6g}")
@@ -496,6 +501,150 @@ def write_prediction(out_dir, prediction, title=None):
             out_dir / "prediction.json"]
 
 
+# ----------------------------------------------------------------- signals
+
+def format_components(components, n_absorbers=None):
+    """Text summary of the SVD of stacked spectra (see :class:`kinfit.spectra.Components`)."""
+    s = components.singular_values
+    shown = ", ".join(f"{v:.4g}" for v in s[:8]) + (", ..." if s.size > 8 else "")
+    out = [f"SVD of the spectra ({s.size} singular values): {shown}",
+           f"  threshold {components.threshold:.4g} ({components.criterion}; noise "
+           f"σ = {components.noise:.3g}{'' if components.noise_declared else ', estimated'})",
+           f"  significant components: {components.n_significant}"
+           + (f" (the model has {n_absorbers} absorbing species; a baseline that differs "
+              f"between runs adds components)" if n_absorbers is not None else "")]
+    if components.n_used is not None:
+        out.append(f"  the fit used the leading {components.n_used} component(s); they leave out "
+                   f"{100 * components.left_out:.3g} % of the data's sum of squares, noise "
+                   f"alone would leave out {100 * components.noise_share:.3g} %")
+    return "\n".join(out)
+
+
+def format_signals(result, wavelengths=None):
+    """Text summary of the signal part of a fit: linear unknowns, spectra, SVD.
+
+    Parameters
+    ----------
+    result : FitResult
+        With ``result.signals`` set.
+    wavelengths : sequence of float, optional
+        Wavelengths at which to quote the resolved spectra.
+    """
+    from .spectra import choose_wavelengths
+
+    sig = result.signals
+    out = ["Signals (Beer–Lambert: signal = offset + drift·t + ℓ Σ ε_X [X]; absorptivities, "
+           "offsets and",
+           "drifts solved by linear least squares in every evaluation; standard errors from "
+           "the full Jacobian)"]
+    if sig.coefficients:
+        rows = []
+        for c in sig.coefficients:
+            shown = "0 (held at the bound)" if c.at_bound else format_value(c.value, c.stderr)
+            rows.append((c.name, shown, c.unit, c.kind))
+        out += _table(rows, ("name", "value ± standard error", "unit", "kind"))
+        strong = [f"{c.name}–{name} {r:+.3f}" for c in sig.coefficients
+                  for name, r in c.correlation.items() if abs(r) >= 0.9]
+        if strong:
+            more = f" and {len(strong) - 6} more (result.json)" if len(strong) > 6 else ""
+            out += textwrap.wrap(f"strong correlations with kinetic parameters: "
+                                 f"{', '.join(strong[:6])}{more}", 88, initial_indent="  ",
+                                 subsequent_indent="    ", break_on_hyphens=False)
+    spectra = sig.spectra
+    if spectra is not None:
+        wl = spectra.wavelengths
+        out.append(f"  spectra of {', '.join(spectra.species)} resolved at {wl.size} "
+                   f"wavelengths, {wl[0]:g}–{wl[-1]:g} {spectra.wavelength_unit} "
+                   f"({spectra.unit}); see spectra.csv")
+        picks = choose_wavelengths(spectra, wavelengths)
+        rows = []
+        for w in picks:
+            col = int(np.argmin(np.abs(wl - w)))
+            rows.append((f"{w:g}", *[format_value(spectra.values[i, col], spectra.stderr[i, col])
+                                     for i in range(len(spectra.species))]))
+        out += ["  " + line for line in _table(rows, (f"λ ({spectra.wavelength_unit})",
+                                                      *spectra.species))]
+        if spectra.sigma is None:
+            fit_text = (f"χ² = {spectra.residual_sum:.6g} over {spectra.n_points} readings "
+                        f"(χ²/N = {spectra.residual_sum / spectra.n_points:.3g})")
+        else:
+            fit_text = (f"Σ residual² = {spectra.residual_sum:.6g} over {spectra.n_points} "
+                        f"readings, σ̂ = {spectra.sigma:.3g}")
+        out.append(f"  full data at the fitted values: {fit_text}")
+    if sig.components is not None:
+        n_abs = len(spectra.species) if spectra is not None else None
+        out += ["  " + line for line in format_components(sig.components, n_abs).split("\n")]
+    return "\n".join(out)
+
+
+def _spectra_csv(spectra):
+    header = [f"wavelength_{spectra.wavelength_unit}"]
+    columns = [spectra.wavelengths]
+    for i, s in enumerate(spectra.species):
+        header += [s, f"{s}_stderr"]
+        columns += [spectra.values[i], spectra.stderr[i]]
+    for name, values in spectra.baselines.items():
+        header.append(f"baseline {name}")
+        columns.append(values)
+    lines = [",".join(header)]
+    lines += [",".join("" if not math.isfinite(v) else f"{v:.8g}" for v in row)
+              for row in np.column_stack(columns)]
+    return "\n".join(lines) + "\n"
+
+
+def _matrix_csv(times, wavelengths, values):
+    lines = ["time," + ",".join(f"{w:g}" for w in wavelengths)]
+    lines += [f"{t:.10g}," + ",".join(f"{v:.6g}" for v in row) for t, row in zip(times, values)]
+    return "\n".join(lines) + "\n"
+
+
+def signal_outputs(result, wavelengths=None):
+    """Files and summary text of the signal part of a fit, computed but not written.
+
+    Returns
+    -------
+    files : dict of str to bytes or str
+        ``spectra.json`` (:meth:`SignalFit.to_dict` without the warnings,
+        which ``result.json`` holds; read by the HTML report). With full
+        spectra also ``spectra.csv`` (wavelength, each species' ε and
+        its standard error, baselines), ``spectra.png``/``.svg``,
+        ``wavelength_traces.png``/``.svg`` (data and fit at chosen
+        wavelengths), ``residual_map.png`` and ``residual_map_<run>.csv``
+        (fit − data, time down and wavelength across, as the input files) and
+        ``components.png`` (singular values). Pass to :func:`write_fit` as
+        `extra_files`.
+    summary : str
+        :func:`format_signals`.
+    """
+    from .plots import plot_components, plot_residual_map, plot_spectra, plot_wavelength_traces
+    from .spectra import choose_wavelengths
+
+    import json
+
+    sig = result.signals
+    data = sig.to_dict()
+    data.pop("warnings")          # already in result.json, with the fit's other warnings
+    files = {"spectra.json": json.dumps(_plain(data), indent=2, ensure_ascii=False) + "\n"}
+    spectra = sig.spectra
+    if spectra is not None:
+        files["spectra.csv"] = _spectra_csv(spectra)
+        picks = choose_wavelengths(spectra, wavelengths)
+        figures = {"spectra": plot_spectra(spectra),
+                   "wavelength_traces": plot_wavelength_traces(result, picks)}
+        for name, fig in figures.items():
+            for fmt in ("png", "svg"):
+                files[f"{name}.{fmt}"] = figure_bytes(fig, fmt)
+        files["residual_map.png"] = figure_bytes(plot_residual_map(result))
+        for run in result.experiment.runs:
+            if run.name in spectra.runs:
+                fitted = spectra.fitted[spectra.runs.index(run.name)]
+                safe = "".join(c if c.isalnum() or c in "-_" else "_" for c in run.name)
+                files[f"residual_map_{safe}.csv"] = _matrix_csv(
+                    run.spectrum.times, spectra.wavelengths, fitted - run.spectrum.values)
+    if sig.components is not None:
+        n_abs = len(spectra.species) if spectra is not None else None
+        files["components.png"] = figure_bytes(plot_components(sig.components, n_abs))
+    return files, format_signals(result, wavelengths)
 # ------------------------------------------------------------------ ranking
 
 def _number(value, fmt=".2f"):

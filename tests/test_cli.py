@@ -18,7 +18,8 @@ runner = CliRunner()
 
 
 def test_help_of_every_command_shows_an_example():
-    for command in ([], ["fit"], ["simulate"], ["demo"], ["rank"], ["sample"], ["report"]):
+    for command in ([], ["fit"], ["simulate"], ["demo"], ["rank"], ["sample"], ["report"],
+                    ["components"]):
         result = runner.invoke(app, command + ["--help"])
         assert result.exit_code == 0
         assert "Example:" in result.output and "kinfit " in result.output
@@ -33,6 +34,13 @@ def test_demo_command(tmp_path):
     assert "standard errors)" in result.output
     data = json.loads((out / "result.json").read_text())
     assert data["success"] and (out / "fit.png").exists() and (out / "inputs" / "traces.csv").exists()
+    # the spectrometer part
+    assert "Quillmere Dyes" in result.output and "significant components: 3" in result.output
+    assert "eps_intermediate_A510" in result.output
+    for name in ("spectra.csv", "spectra.png", "wavelength_traces.png", "residual_map.png",
+                 "components.png"):
+        assert (out / "spectrometer" / "spectra" / name).exists(), name
+    assert (out / "inputs" / "spectrometer" / "absorbance_r1.txt").exists()
 
 
 def test_fit_command_on_the_demo(tmp_path):
@@ -441,3 +449,61 @@ def test_killed_sampler_resumes_to_the_same_chain(tmp_path):
     post_a = json.loads((killed / "posterior.json").read_text())["parameters"]
     post_b = json.loads((whole / "posterior.json").read_text())["parameters"]
     assert post_a["k"]["median"] == post_b["k"]["median"]
+
+
+# ------------------------------------------------------------ spectrometer
+
+SPECTRA_DEMO = DEMO / "spectra"
+
+
+def test_fit_command_on_full_spectra(tmp_path):
+    out = tmp_path / "spectra"
+    result = runner.invoke(app, ["fit", str(SPECTRA_DEMO / "spectra.toml"), "--model",
+                                 str(SPECTRA_DEMO / "dye_formation.toml"), "--out", str(out),
+                                 "--starts", "1", "--wavelengths", "420,560"])
+    assert result.exit_code == 0, result.output
+    assert "resolved at 71 wavelengths" in result.output and "SVD of the spectra" in result.output
+    header = (out / "spectra.csv").read_text().splitlines()[0]
+    assert header == ("wavelength_nm,precursor,precursor_stderr,intermediate,"
+                      "intermediate_stderr,dye,dye_stderr")
+    data = json.loads((out / "result.json").read_text())
+    assert data["signals"]["components"]["n_significant"] == 3
+    assert len(data["signals"]["spectra"]["wavelengths"]) == 71
+    lines = (out / "residual_map_r2.csv").read_text().splitlines()
+    assert lines[0].startswith("time,380,384") and len(lines) == 1 + 46
+
+
+def test_fit_command_on_absorbance(tmp_path):
+    out = tmp_path / "abs"
+    result = runner.invoke(app, ["fit", str(SPECTRA_DEMO / "absorbance.toml"), "--model",
+                                 str(SPECTRA_DEMO / "dye_formation.toml"), "--out", str(out),
+                                 "--starts", "1"])
+    assert result.exit_code == 0, result.output
+    data = json.loads((out / "result.json").read_text())
+    eps = data["signals"]["coefficients"]["eps_dye_A510"]
+    assert eps["unit"] == "mM^-1 cm^-1" and eps["stderr"] > 0
+    assert data["statistics"]["n_params"] == 2 + 4 + 2 + 4    # k, t0, ε, offsets
+
+
+def test_components_command():
+    result = runner.invoke(app, ["components", str(SPECTRA_DEMO / "spectra.toml")])
+    assert result.exit_code == 0, result.output
+    assert "3 run(s), 138 spectra of 71 wavelengths" in result.output
+    assert "significant components: 3" in result.output
+
+
+@pytest.mark.parametrize("args, message", [
+    (["--components", "none"], "expected auto, all or a whole number"),
+    (["--wavelengths", "blue"], "expected numbers separated by commas"),
+])
+def test_bad_spectrometer_options(tmp_path, args, message):
+    result = runner.invoke(app, ["fit", str(SPECTRA_DEMO / "spectra.toml"), "--model",
+                                 str(SPECTRA_DEMO / "dye_formation.toml"), "--out",
+                                 str(tmp_path / "o"), *args])
+    assert result.exit_code == 2 and message in result.output
+    assert not (tmp_path / "o").exists()
+
+
+def test_components_of_an_experiment_without_spectra():
+    result = runner.invoke(app, ["components", str(DEMO / "experiment.toml")])
+    assert result.exit_code == 2 and "no run gives a spectrum file" in result.output

@@ -155,3 +155,24 @@ def test_write_posterior(line_posterior, tmp_path):
     data = json.loads((tmp_path / "out" / "posterior.json").read_text())
     assert data["parameters"]["k"]["unit"] == "M s^-1"
     assert not [p for p in (tmp_path / "out").iterdir() if ".part" in p.name]
+
+
+def test_signal_summary_and_files():
+    from conftest import DEMO
+    from kinfit.report import format_components, format_signals, signal_outputs
+
+    folder = DEMO / "spectra"
+    mech = load_mechanism(folder / "dye_formation.toml")
+    result = fit(load_experiment(folder / "spectra.toml"), mech, starts=1)
+    text = format_signals(result, [400.0])
+    assert "spectra of precursor, intermediate, dye resolved at 71 wavelengths" in text
+    assert "significant components: 3" in text and "the fit used the leading 3" in text
+    first = format_components(result.signals.components).splitlines()[0]
+    assert "  " + first in text
+    files, summary = signal_outputs(result)
+    assert summary == format_signals(result)
+    assert set(files) >= {"spectra.csv", "spectra.png", "spectra.svg", "components.png",
+                          "residual_map.png", "residual_map_r1.csv", "wavelength_traces.png"}
+    rows = files["spectra.csv"].splitlines()
+    assert len(rows) == 72
+    assert json.loads(json.dumps(result.to_dict()))["signals"]["reduced"] is True

@@ -1,0 +1,16 @@
+"""Regenerate the demo's spectrometer part in this folder (fixed seed, so the same bytes).
+
+The invented scenario, the true values and the noise are defined in
+kinfit/demo_spectra.py; `kinfit demo` writes the same files into its output
+folder (inputs/spectrometer) and fits them. Run from anywhere:
+
+    python demo/spectra/make_data.py
+"""
+
+from pathlib import Path
+
+from kinfit.demo_spectra import write_inputs
+
+if __name__ == "__main__":
+    for path in write_inputs(Path(__file__).resolve().parent).values():
+        print(f"wrote {path}")
