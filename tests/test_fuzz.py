@@ -176,3 +176,62 @@ def test_wide_table_cells(tmp_path_factory, header, rows):
 def test_wide_table_bytes(tmp_path_factory, blob):
     folder = tmp_path_factory.mktemp("wide")
     _experiment(folder, '[[runs]]\nname = "r1"\nfile = "r1.csv"\n', blob, name="r1.csv")
+
+
+# ---------------------------------------------------------- instrument exports
+
+INSTRUMENT_ALPHABET = "time,;\t0123456789.,-eE \nAB()[]/\"xminsµ#:="
+
+
+@given(st.text(alphabet=st.sampled_from(list(INSTRUMENT_ALPHABET)), max_size=300))
+def test_instrument_table_text(text):
+    from kinfit.instrument import table_from_text
+
+    try:
+        table = table_from_text(text, "fuzz.csv")
+    except KinfitError:
+        return
+    for c in range(len(table.names)):
+        try:
+            values, blank = table.numbers(c, allow_blank=True)
+        except KinfitError:
+            continue
+        assert np.isfinite(values[~blank]).all()
+
+
+@given(st.binary(max_size=600))
+def test_instrument_table_bytes(tmp_path_factory, blob):
+    from kinfit.instrument import read_table
+
+    path = tmp_path_factory.mktemp("inst") / "export.csv"
+    path.write_bytes(blob)
+    try:
+        read_table(path, "export.csv")
+    except KinfitError:
+        pass
+
+
+@given(st.one_of(st.binary(max_size=600),
+                 st.text(alphabet=st.sampled_from(list(INSTRUMENT_ALPHABET)),
+                         max_size=400).map(lambda t: t.encode("utf-8"))))
+def test_spectrum_matrix(tmp_path_factory, blob):
+    from kinfit.signals import read_spectrum
+
+    path = tmp_path_factory.mktemp("spec") / "spectrum.csv"
+    path.write_bytes(blob)
+    try:
+        read_spectrum(path, "spectrum.csv", "s")
+    except KinfitError:
+        pass
+
+
+@given(st.dictionaries(st.sampled_from(["path_length", "offset", "drift", "nonnegative", "unit",
+                                        "channels", "spectra", "other"]), toml_value(),
+                       max_size=5))
+def test_experiment_with_signals(tmp_path_factory, signals):
+    folder = tmp_path_factory.mktemp("sig")
+    lines = ["[data]", 'file = "traces.csv"', "[signals]"]
+    lines += [f"{k} = {toml_literal(v)}" for k, v in signals.items()]
+    lines += ["[[runs]]", 'name = "r1"']
+    _experiment(folder, "\n".join(lines) + "\n",
+                b"run,time,species,value\nr1,0,A,1\nr1,1,A,0.5\nr1,2,A,0.2\n")
