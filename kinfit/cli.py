@@ -438,14 +438,19 @@ def components_command(
 def demo_command(
     out: Path = typer.Option(Path("kinfit-demo"), "--out", "-o",
                              help="Folder for the demo's inputs and results."),
+    full: bool = typer.Option(False, "--full",
+                              help="Also sample the posterior (about half a minute more), so "
+                                   "that the report shows every section."),
 ):
     """Run the whole pipeline on the bundled, invented demo study.
 
     Writes the demo's model, experiment and synthetic data into OUT/inputs,
     fits them, prints the recovered rate law beside the true values used to
-    make the data, and writes the results into OUT. Its spectrometer part
-    (an invented dye synthesis followed by absorbance at one wavelength and
-    by full spectra) goes to OUT/inputs/spectrometer and OUT/spectrometer.
+    make the data, ranks the free-order fit against fixed orders, and writes
+    the results and report.html into OUT. Its spectrometer part (an invented
+    dye synthesis followed by absorbance at one wavelength and by full
+    spectra) goes to OUT/inputs/spectrometer and OUT/spectrometer. With
+    --full the posterior is sampled too.
 
     Example:
 
@@ -465,15 +470,46 @@ def demo_command(
         exp, mech = load_experiment(paths["experiment"]), load_mechanism(paths["model"])
         result = fit(exp, mech)
         written = write_fit(out, result, provenance=_provenance(exp, mech, 0, {"starts": 8}))
-        written.append(_report(out))
         typer.echo(format_fit(result))
         typer.echo("\nRecovered against the true values used to make the data")
         for name, true, value, se, z in demo.compare_with_truth(result):
             typer.echo(f"  {name:<11} true {true:<8g} fitted {format_value(value, se):<24} "
                        f"({z:+.1f} standard errors)")
-        typer.echo(f"\nInputs in {out / 'inputs'}; results "
-                   f"({', '.join(p.name for p in written)}) in {out}")
+        typer.echo("\n" + "=" * 88 + "\n")
+        written += _demo_ranking(out, exp, mech)
+        if full:
+            written += _demo_posterior(out, exp, mech, result)
+        written.append(_report(out))
+        typer.echo(f"Inputs in {out / 'inputs'}; results "
+                   f"({', '.join(sorted({p.name for p in written}))}) in {out}")
         _spectrometer_demo(out)
+
+
+def _demo_ranking(out, exp, mech):
+    """Rank the demo's free-order fit against fixed orders in thiol and acrylate."""
+    from .compare import rank
+    from .report import format_ranking, write_ranking
+
+    grid = {"m_thiol": [0.5, 1.0, 1.5, 2.0], "m_acrylate": [0.5, 1.0, 1.5, 2.0]}
+    comparison = rank(exp, [mech], grid, seed=0, workers=1)
+    written = write_ranking(out / "ranking", comparison)
+    for name in ("ranking.json", "weights.png", "weights.svg", "initial_rates.png",
+                 "initial_rates.svg"):
+        source = out / "ranking" / name
+        if source.exists():                # the combined report reads them beside the fit
+            (out / name).write_bytes(source.read_bytes())
+    typer.echo(format_ranking(comparison, top=5, cautions=False) + "\n")
+    return written
+
+
+def _demo_posterior(out, exp, mech, result):
+    """Sample the demo's posterior starting from its fit."""
+    from .posterior import sample
+    from .report import format_posterior, write_posterior
+
+    post = sample(exp, mech, walkers=32, steps=3000, seed=0, fit_result=result)
+    typer.echo(format_posterior(post) + "\n")
+    return write_posterior(out, post)
 
 
 def _spectrometer_demo(out):
