@@ -58,6 +58,7 @@ _EXPORTS = {
     "plot_traces": "plots",
     "plot_residuals": "plots",
     "plot_trajectory": "plots",
+    "figures": "plots",
     "plot_weights": "plots",
     "plot_initial_rates": "plots",
     "plot_arrhenius": "plots",

@@ -16,6 +16,9 @@ from pathlib import Path
 
 __all__ = ["atomic_path", "write_text", "write_json", "write_bytes"]
 
+_UMASK = os.umask(0)
+os.umask(_UMASK)
+
 
 @contextmanager
 def atomic_path(target, suffix=None):
@@ -41,6 +44,7 @@ def atomic_path(target, suffix=None):
                                dir=target.parent)
     os.close(fd)
     tmp = Path(tmp)
+    os.chmod(tmp, 0o666 & ~_UMASK)       # as an ordinary file, not mkstemp's owner-only mode
     try:
         yield tmp
         with open(tmp, "rb+") as handle:

@@ -183,13 +183,19 @@ def _report(out):
     return build_report(out)
 
 
-def _temperature_outputs(exp, mech, result, two_stage, seed):
-    from .activation import activation_parameters
+def _temperature_outputs(exp, mech, result, two_stage, seed, posterior=None):
+    from .activation import activation_parameters, with_posterior, with_profile
     from .prediction import basis_from_fit
     from .report import temperature_outputs
     from .two_stage import two_stage as run_two_stage
 
     activations = activation_parameters(result)
+    if posterior is not None:      # the sampler's intervals beside the delta-method ones
+        activations = with_posterior(activations, posterior.samples, posterior.names)
+        if posterior.profiles is not None:
+            activations = with_profile(activations, {
+                name: p.intervals.get(0.95) for name, p in posterior.profiles.parameters.items()
+                if p.intervals.get(0.95) and None not in p.intervals.get(0.95)})
     analysis = None
     if two_stage != "none":
         try:
@@ -276,22 +282,33 @@ def sample_command(
         finally:
             signal.signal(signal.SIGTERM, previous)
         written = write_posterior(out, post)
+        temp_summary = None
         if report:
             from .report import write_fit
 
             exp_used = post.fit.experiment
-            files, summary = {}, None
+            files, summaries = {}, []
             if post.fit.signals is not None:    # the solved absorptivities and spectra too
                 from .report import signal_outputs
 
-                files, summary = signal_outputs(post.fit)
+                signal_files, signal_summary = signal_outputs(post.fit)
+                files.update(signal_files)
+                summaries.append(signal_summary)
+            if post.fit.mechanism.temperature is not None:   # activation parameters with
+                temp_files, temp_summary = _temperature_outputs(   # posterior intervals
+                    exp_used, post.fit.mechanism, post.fit, "free", seed, post)
+                files.update(temp_files)
+                summaries.append(temp_summary)
             provenance = _provenance(exp_used, post.fit.mechanism, seed,
                                      {"walkers": walkers, "steps": steps, "noise": noise,
                                       "moves": moves, "starts": starts})
-            written = write_fit(out, post.fit, extra_files=files, extra_summary=summary,
+            written = write_fit(out, post.fit, extra_files=files,
+                                extra_summary="\n\n".join(summaries) or None,
                                 provenance=provenance) + written
             written.append(_report(out))
         typer.echo(format_posterior(post))
+        if temp_summary:
+            typer.echo("\n" + temp_summary)
         typer.echo(f"\nWrote {', '.join(p.name for p in written)} in {out}")
 
 
@@ -487,6 +504,7 @@ def demo_command(
 
 def _demo_ranking(out, exp, mech):
     """Rank the demo's free-order fit against fixed orders in thiol and acrylate."""
+    from .atomic import write_bytes
     from .compare import rank
     from .report import format_ranking, write_ranking
 
@@ -497,7 +515,7 @@ def _demo_ranking(out, exp, mech):
                  "initial_rates.svg"):
         source = out / "ranking" / name
         if source.exists():                # the combined report reads them beside the fit
-            (out / name).write_bytes(source.read_bytes())
+            write_bytes(out / name, source.read_bytes())
     typer.echo(format_ranking(comparison, top=5, cautions=False) + "\n")
     return written
 

@@ -304,6 +304,12 @@ class Comparison:
                 return row
         raise KeyError(name)
 
+    def _repr_html_(self):
+        """Tidy HTML tables for notebooks."""
+        from .report import ranking_html
+
+        return ranking_html(self)
+
     def to_dict(self):
         """Plain-Python form: the content of ``ranking.json``."""
         exp = self.best.fit.experiment

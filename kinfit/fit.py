@@ -180,6 +180,12 @@ class FitResult:
                                     for j, b in enumerate(self.free_names) if b != a}
         return params
 
+    def _repr_html_(self):
+        """Tidy HTML tables for notebooks."""
+        from .report import fit_html
+
+        return fit_html(self)
+
     def to_dict(self):
         """Plain-Python summary (the content of ``result.json``)."""
         params = {}

@@ -19,7 +19,7 @@ from matplotlib.figure import Figure
 __all__ = ["plot_traces", "plot_residuals", "plot_trajectory", "plot_arrhenius",
            "plot_eyring", "plot_prediction", "plot_weights", "plot_initial_rates", "plot_corner",
            "plot_bands", "plot_profiles", "plot_spectra", "plot_wavelength_traces",
-           "plot_residual_map", "plot_components", "PALETTE"]
+           "plot_residual_map", "plot_components", "PALETTE", "figures"]
 
 PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#F0E442",
            "#000000")
@@ -703,3 +703,33 @@ def plot_components(components, n_absorbers=None, fig=None):
     ax.set_title("SVD of the spectra", fontsize=10)
     ax.legend(fontsize=8, frameon=False)
     return fig
+
+
+def figures(result):
+    """The main figures of a result, by name, for a notebook.
+
+    Parameters
+    ----------
+    result : FitResult, Posterior or Comparison
+
+    Returns
+    -------
+    dict of str to matplotlib.figure.Figure
+        A fit: ``fit`` and ``residuals``; a posterior adds ``corner``,
+        ``bands`` and ``profiles``; a ranking gives ``weights`` and, with the
+        cross-check, ``initial_rates``, plus the best candidate's figures.
+    """
+    if hasattr(result, "candidates"):                 # a Comparison
+        out = {"weights": plot_weights(result)}
+        if getattr(result, "cross_check", None) is not None:
+            out["initial_rates"] = plot_initial_rates(result.cross_check)
+        out.update(figures(result.best.fit))
+        return out
+    if hasattr(result, "samples"):                    # a Posterior
+        out = figures(result.fit)
+        out["corner"] = plot_corner(result)
+        out["bands"] = plot_bands(result)
+        if getattr(result, "profiles", None) is not None:
+            out["profiles"] = plot_profiles(result)
+        return out
+    return {"fit": plot_traces(result), "residuals": plot_residuals(result)}

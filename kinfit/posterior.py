@@ -252,6 +252,12 @@ class Posterior:
                 out.append((a, b, float(self.correlation[i, j]), rho_fit))
         return out
 
+    def _repr_html_(self):
+        """Tidy HTML tables for notebooks."""
+        from .report import posterior_html
+
+        return posterior_html(self)
+
     def to_dict(self):
         """Plain-Python content of ``posterior.json``."""
         intervals = {row["name"]: row for row in compare_intervals(self)}

@@ -27,3 +27,14 @@ def test_json_has_no_nan(tmp_path):
                                      "c": np.array([1, 2]), "d": float("inf")})
     assert json.loads((tmp_path / "x.json").read_text()) == {"a": None, "b": 1.5,
                                                                "c": [1, 2], "d": None}
+
+
+def test_outputs_get_ordinary_permissions(tmp_path):
+    # written files are readable by whoever could read a file the user creates
+    # (mode 0666 minus the umask), not owner-only as the temporary file starts
+    import os
+
+    umask = os.umask(0)
+    os.umask(umask)
+    write_text(tmp_path / "x.txt", "hi\n")
+    assert (tmp_path / "x.txt").stat().st_mode & 0o777 == 0o666 & ~umask

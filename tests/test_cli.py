@@ -507,3 +507,20 @@ def test_bad_spectrometer_options(tmp_path, args, message):
 def test_components_of_an_experiment_without_spectra():
     result = runner.invoke(app, ["components", str(DEMO / "experiment.toml")])
     assert result.exit_code == 2 and "no run gives a spectrum file" in result.output
+
+
+def test_sample_on_a_temperature_model_gives_posterior_activation_intervals(tmp_path):
+    # The sampler covers temperature dependence: Ea, A, ΔH‡, ΔS‡ and ΔG‡ get
+    # posterior intervals beside the delta-method ones.
+    out = tmp_path / "post"
+    result = runner.invoke(app, ["sample", str(DEMO / "temperature" / "experiment.toml"),
+                                 "--model", str(DEMO / "temperature" / "ester_hydrolysis.toml"),
+                                 "--out", str(out), "--steps", "300", "--walkers", "16",
+                                 "--no-profile", "--starts", "2"])
+    assert result.exit_code == 0, result.output
+    data = json.loads((out / "temperature.json").read_text())
+    estimates = data["activation"][0]["estimates"]
+    for name in ("Ea", "dH"):
+        lo, hi = estimates[name]["posterior_interval"]
+        assert lo < estimates[name]["value"] < hi
+    assert "temperature" in (out / "report.html").read_text(encoding="utf-8").lower()

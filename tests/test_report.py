@@ -176,3 +176,30 @@ def test_signal_summary_and_files():
     rows = files["spectra.csv"].splitlines()
     assert len(rows) == 72
     assert json.loads(json.dumps(result.to_dict()))["signals"]["reduced"] is True
+
+
+def test_notebook_tables_and_figures(result):
+    # a notebook shows tidy HTML tables for results, and kinfit.figures returns the plots
+    import xml.etree.ElementTree as ET
+
+    import kinfit
+
+    html = result._repr_html_()
+    root = ET.fromstring(f"<div>{html}</div>")        # well-formed markup
+    assert len(root.findall("table")) == 3 and "s^-1" in html
+    figs = kinfit.figures(result)
+    assert set(figs) == {"fit", "residuals"} and figs["fit"].axes
+
+
+def test_notebook_tables_of_posteriors_and_rankings(line_posterior, small_ranking):
+    import xml.etree.ElementTree as ET
+
+    import kinfit
+
+    line_posterior, small_ranking = line_posterior[0], small_ranking[0]
+    for obj in (line_posterior, small_ranking):
+        html = obj._repr_html_()
+        ET.fromstring(f"<div>{html}</div>")
+        assert "<table>" in html
+    assert {"corner", "bands", "fit", "residuals"} <= set(kinfit.figures(line_posterior))
+    assert {"weights", "fit"} <= set(kinfit.figures(small_ranking))
