@@ -213,7 +213,7 @@ def write_fit(out_dir, result, extra_files=None, extra_summary=None, provenance=
 
 
 def write_simulation(out_dir, trajectory, units=None, title=None):
-    """Write ``simulation.csv`` and ``simulation.png`` for a trajectory.
+    """Write ``simulation.csv`` and ``simulation.png``/``.svg`` for a trajectory.
 
     Returns
     -------
@@ -222,14 +222,16 @@ def write_simulation(out_dir, trajectory, units=None, title=None):
     from .plots import plot_trajectory
 
     out_dir = _prepare(out_dir)
-    png = figure_bytes(plot_trajectory(trajectory, units, title))
+    fig = plot_trajectory(trajectory, units, title)
+    images = {f"simulation.{fmt}": figure_bytes(fig, fmt) for fmt in ("png", "svg")}
     lines = ["time," + ",".join(trajectory.species)]
     for t, row in zip(trajectory.times, np.asarray(trajectory.conc)):
         lines.append(f"{t:.10g}," + ",".join(f"{v:.10g}" for v in row))
     out_dir.mkdir(parents=True, exist_ok=True)
     write_text(out_dir / "simulation.csv", "\n".join(lines) + "\n")
-    write_bytes(out_dir / "simulation.png", png)
-    return [out_dir / "simulation.csv", out_dir / "simulation.png"]
+    for name, blob in images.items():
+        write_bytes(out_dir / name, blob)
+    return [out_dir / "simulation.csv"] + [out_dir / name for name in images]
 
 
 # ------------------------------------------------------------ temperature
@@ -464,7 +466,7 @@ def format_prediction(prediction, title=None):
 
 
 def write_prediction(out_dir, prediction, title=None):
-    """Write ``simulation.csv``, ``simulation.png`` and ``prediction.json``.
+    """Write ``simulation.csv``, ``simulation.png``/``.svg`` and ``prediction.json``.
 
     ``simulation.csv`` has a time column, one column per species and, with a
     band, ``<species>_lower`` and ``<species>_upper``. ``prediction.json``
@@ -480,7 +482,8 @@ def write_prediction(out_dir, prediction, title=None):
     from .plots import plot_prediction
 
     out_dir = _prepare(out_dir)
-    png = figure_bytes(plot_prediction(prediction, title))
+    fig = plot_prediction(prediction, title)
+    png = figure_bytes(fig)
     header = ["time", *prediction.species]
     columns = [prediction.times] + [prediction.conc[:, i] for i in range(len(prediction.species))]
     if prediction.lower is not None:
@@ -493,11 +496,13 @@ def write_prediction(out_dir, prediction, title=None):
     data["cautions"] = temperature_cautions(prediction.fitted_temperature) \
         if prediction.temperature is not None else CAUTIONS
     text = json.dumps(_plain(data), indent=2, ensure_ascii=False) + "\n"
+    svg = figure_bytes(fig, "svg")
     out_dir.mkdir(parents=True, exist_ok=True)
     write_text(out_dir / "simulation.csv", "\n".join(lines) + "\n")
     write_bytes(out_dir / "simulation.png", png)
+    write_bytes(out_dir / "simulation.svg", svg)
     write_text(out_dir / "prediction.json", text)
-    return [out_dir / "simulation.csv", out_dir / "simulation.png",
+    return [out_dir / "simulation.csv", out_dir / "simulation.png", out_dir / "simulation.svg",
             out_dir / "prediction.json"]
 
 
@@ -634,7 +639,9 @@ def signal_outputs(result, wavelengths=None):
         for name, fig in figures.items():
             for fmt in ("png", "svg"):
                 files[f"{name}.{fmt}"] = figure_bytes(fig, fmt)
-        files["residual_map.png"] = figure_bytes(plot_residual_map(result))
+        residual_map = plot_residual_map(result)
+        for fmt in ("png", "svg"):
+            files[f"residual_map.{fmt}"] = figure_bytes(residual_map, fmt)
         for run in result.experiment.runs:
             if run.name in spectra.runs:
                 fitted = spectra.fitted[spectra.runs.index(run.name)]
@@ -643,7 +650,9 @@ def signal_outputs(result, wavelengths=None):
                     run.spectrum.times, spectra.wavelengths, fitted - run.spectrum.values)
     if sig.components is not None:
         n_abs = len(spectra.species) if spectra is not None else None
-        files["components.png"] = figure_bytes(plot_components(sig.components, n_abs))
+        components = plot_components(sig.components, n_abs)
+        for fmt in ("png", "svg"):
+            files[f"components.{fmt}"] = figure_bytes(components, fmt)
     return files, format_signals(result, wavelengths)
 # ------------------------------------------------------------------ ranking
 
@@ -939,9 +948,10 @@ def write_posterior(out_dir, post):
     from .posterior import CHAIN_FILE, write_chain
 
     out_dir = _prepare(out_dir)
-    figures = {"corner.png": plot_corner(post), "bands.png": plot_bands(post),
-               "profiles.png": plot_profiles(post)}
-    payload = {name: figure_bytes(fig) for name, fig in figures.items()}
+    figures = {"corner": plot_corner(post), "bands": plot_bands(post),
+               "profiles": plot_profiles(post)}
+    payload = {f"{name}.{fmt}": figure_bytes(fig, fmt) for name, fig in figures.items()
+               for fmt in ("png", "svg")}
     summary = format_posterior(post)
     data = post.to_dict()
     out_dir.mkdir(parents=True, exist_ok=True)
