@@ -95,7 +95,8 @@ def test_write_prediction(tmp_path, arrhenius_study):
     text = format_prediction(pred, "decay")
     assert text.startswith("EXTRAPOLATED") and "calorimetry" in text
     written = write_prediction(tmp_path / "p", pred, "decay")
-    assert [p.name for p in written] == ["simulation.csv", "simulation.png", "prediction.json"]
+    assert [p.name for p in written] == ["simulation.csv", "simulation.png", "simulation.svg",
+                                         "prediction.json"]
     header = (tmp_path / "p" / "simulation.csv").read_text().splitlines()[0]
     assert header == "time,A,P,A_lower,A_upper,P_lower,P_upper"
     data = json.loads((tmp_path / "p" / "prediction.json").read_text())
@@ -151,6 +152,7 @@ def test_write_posterior(line_posterior, tmp_path):
     written = write_posterior(tmp_path / "out", post)
     names = sorted(p.name for p in written)
     assert names == sorted(["chain.npz", "corner.png", "bands.png", "profiles.png",
+                            "corner.svg", "bands.svg", "profiles.svg",
                             "posterior_summary.txt", "posterior.json"])
     data = json.loads((tmp_path / "out" / "posterior.json").read_text())
     assert data["parameters"]["k"]["unit"] == "M s^-1"
