@@ -538,7 +538,7 @@ def _spectrometer_demo(out):
     from .data import load_experiment
     from .fit import fit
     from .mechanism import load_mechanism
-    from .report import format_fit, format_signals, format_value, signal_outputs, write_fit
+    from .report import format_fit, format_value, signal_outputs, write_fit
 
     typer.echo("\n" + "=" * 88 + "\n" + textwrap.fill(demo_spectra.SCENARIO, 88) + "\n")
     paths = demo_spectra.write_inputs(out / "inputs" / "spectrometer")

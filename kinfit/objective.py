@@ -32,7 +32,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import KinfitError
-from .observables import build_observation, observe
+from .observables import build_observation
 from .spectra import build_signal_model
 from .compiled import KIND_INITIAL, KIND_LOG_K, KIND_ORDER
 from .mechanism import rates as rates_fn

@@ -12,7 +12,7 @@ from pathlib import Path
 import pytest
 from typer.testing import CliRunner
 
-from conftest import DEMO, ROOT
+from conftest import ROOT
 from kinfit.cli import app
 from kinfit.errors import KinfitError
 from kinfit.html_report import build_report

@@ -15,7 +15,6 @@ live in the test itself.
 from __future__ import annotations
 
 import shutil
-import textwrap
 from pathlib import Path
 
 HERE = Path(__file__).parent / "catalogue"
