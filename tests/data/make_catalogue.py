@@ -149,6 +149,56 @@ case("negative_measured_concentration", exit=0,
      warning=r"traces\.csv, line 5: A = -0\.5 is negative",
      files={"traces.csv": TRACES.replace("0.22", "-0.5")})
 
+# --- instrument-style tables and spectra
+INSTRUMENT_EXPERIMENT = WIDE_EXPERIMENT.replace('concentration = "M"', 'concentration = "mM"')
+case("time_unit_in_header_converted", exit=0,
+     files={"experiment.toml": INSTRUMENT_EXPERIMENT,
+            "r1.csv": "time (min),A (mM)\n0,1.0\n1,0.6\n2,0.37\n3,0.22\n"})
+case("metadata_lines_above_the_table", exit=0,
+     files={"experiment.toml": INSTRUMENT_EXPERIMENT,
+            "r1.csv": "Spectrometer export\nOperator: nobody\n\ntime;A\n0;1,0\n10;0,6\n"
+                      "20;0,37\n30;0,22\n"})
+case("units_disagree_concentration_column_in_minutes",
+     message=r"r1\.csv, line 1 \(column 'A'\): 'min' is not a concentration unit",
+     files={"experiment.toml": INSTRUMENT_EXPERIMENT,
+            "r1.csv": "time (s),A (min)\n0,1.0\n10,0.6\n20,0.37\n30,0.22\n"})
+case("units_disagree_time_in_kilograms",
+     message=r"r1\.csv, line 1 \(time column\): 'kg' is not a time unit",
+     files={"experiment.toml": INSTRUMENT_EXPERIMENT,
+            "r1.csv": "time (kg),A\n0,1.0\n10,0.6\n20,0.37\n30,0.22\n"})
+case("mixed_decimal_marks", message=r"r1\.csv: mixes decimal points .* and decimal commas",
+     files={"experiment.toml": INSTRUMENT_EXPERIMENT,
+            "r1.csv": "time;A\n0;1,0\n10;0.6\n20;0,37\n30;0,22\n"})
+case("no_recognisable_header", message=r"r1\.csv, line 1: no 'time' column",
+     files={"experiment.toml": INSTRUMENT_EXPERIMENT, "r1.csv": "foo,bar\n0,1.0\n1,0.6\n"})
+SPECTRA_EXPERIMENT = """[units]
+time = "s"
+concentration = "M"
+[signals]
+path_length = 1.0
+[signals.spectra]
+absorbers = ["A", "P"]
+components = "all"
+[[runs]]
+name = "r1"
+spectrum = "s1.csv"
+initial = { A = 1.0 }
+"""
+SPECTRUM = "time,400,450,500\n0,1.0,0.5,0.1\n10,0.8,0.55,0.2\n20,0.6,0.6,0.3\n30,0.5,0.62,0.35\n"
+case("spectrum_wavelength_not_a_number", message=r"s1\.csv, line 1: .*wavelength",
+     files={"experiment.toml": SPECTRA_EXPERIMENT, "s1.csv": SPECTRUM.replace("450", "blue")})
+case("spectrum_time_goes_backwards", message=r"s1\.csv, line 4: time is not increasing",
+     files={"experiment.toml": SPECTRA_EXPERIMENT, "s1.csv": SPECTRUM.replace("20,0.6", "5,0.6")})
+case("spectrum_file_missing", message=r"spectrum file 'nope\.csv' not found|'nope\.csv' not found",
+     files={"experiment.toml": SPECTRA_EXPERIMENT.replace("s1.csv", "nope.csv")})
+case("spectrum_text_cell", message=r"s1\.csv, line 3: .*not a number",
+     files={"experiment.toml": SPECTRA_EXPERIMENT,
+            "s1.csv": SPECTRUM.replace("0.55", "dark")})
+case("signal_channel_for_unknown_species", message=r"signals.*'Z'|'Z'.*signals|species 'Z'",
+     files={"experiment.toml": INSTRUMENT_EXPERIMENT + "[signals]\npath_length = 1.0\n"
+            "[signals.channels]\nA480 = { Z = \"unknown\" }\n",
+            "r1.csv": "time,A480\n0,1.0\n10,0.6\n20,0.37\n30,0.22\n"})
+
 # --- experiments
 case("negative_initial_concentration", message=r"initial\.A\): a concentration cannot be "
                                                r"negative",
