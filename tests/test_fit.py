@@ -51,7 +51,7 @@ def test_nist_boxbod(tmp_path, start):
                                f'[parameters]\nk = {start["b2"]}\n')
     result = fit(load_experiment(tmp_path / "e.toml"), mech, starts=1)
     assert result.success
-    # at least 5 significant digits of the certified values (issue contract)
+    # at least 5 significant digits of the certified values (required)
     assert sig_digits_equal(result.values["A0_bod"], BOXBOD_B1, 5)
     assert sig_digits_equal(result.values["k"], BOXBOD_B2, 5)
     assert result.values["A0_bod"] == pytest.approx(BOXBOD_B1, rel=2e-6)

@@ -20,7 +20,7 @@ from kinfit.errors import KinfitError
 from kinfit.mechanism import mechanism_from_text
 from kinfit.simulate import integrate, simulate
 
-REL = 1e-6  # required agreement with the closed forms (issue contract)
+REL = 1e-6  # required agreement with the closed forms
 
 
 def one_step(reaction, rate, **params):
