@@ -180,6 +180,13 @@ class Problem:
             groups.append(group)
         return [groups[g] for g in self.temperature.run_group]
 
+    def _starting_concentrations(self, values):
+        """Starting concentrations [n_sets, n_runs, n_species], fitted ones filled in."""
+        conc0 = np.repeat(self._conc0[None], values.shape[0], axis=0)
+        for r, s, p in self._initial_map:
+            conc0[:, r, s] = values[:, p]
+        return conc0
+
     def run_inputs(self, values, times=None):
         """Starting concentrations and model times of every run.
 
@@ -196,9 +203,7 @@ class Problem:
             Data-clock times plus each set's time offset of the run.
         """
         n_sets = values.shape[0]
-        conc0 = np.repeat(self._conc0[None], n_sets, axis=0)
-        for r, s, p in self._initial_map:
-            conc0[:, r, s] = values[:, p]
+        conc0 = self._starting_concentrations(values)
         model_times = []
         for r, grid in enumerate(self._times if times is None else times):
             p = self._offset_map[r]
@@ -264,9 +269,7 @@ class Problem:
             k = np.stack([kr for kr, _ in rates], axis=1).reshape(n_sets * n_runs, -1)
             orders = np.stack([er for _, er in rates], axis=1)
             orders = orders.reshape(n_sets * n_runs, *orders.shape[2:])
-        conc0 = np.repeat(self._conc0[None], n_sets, axis=0)
-        for r, s, p in self._initial_map:
-            conc0[:, r, s] = values[:, p]
+        conc0 = self._starting_concentrations(values)
         t_out, out_start, rows = _grid_for(lay, n_sets)
         if lay["has_offsets"]:
             shift = np.zeros((n_sets, n_runs))
