@@ -8,7 +8,7 @@ kinfit/demo.py; `kinfit demo` writes the same files into its output folder.
 
 from pathlib import Path
 
-from kinfit.demo import write_inputs
+from kinfit.app.demo import write_inputs
 
 if __name__ == "__main__":
     for path in write_inputs(Path(__file__).parent).values():

@@ -13,79 +13,80 @@ The public names are re-exported here and imported on first use, so that
 import sys
 from importlib import import_module
 
-__version__ = "0.1.0"
+from kinfit.core.version import __version__
 
 _EXPORTS = {
-    "KinfitError": "errors",
-    "KinfitWarning": "errors",
-    "Mechanism": "mechanism",
-    "Step": "mechanism",
-    "Parameter": "mechanism",
-    "load_mechanism": "mechanism",
-    "mechanism_from_text": "mechanism",
-    "with_fixed": "mechanism",
-    "Experiment": "data",
-    "Run": "data",
-    "Trace": "data",
-    "load_experiment": "data",
-    "simulate": "simulate",
-    "Trajectory": "simulate",
-    "residuals": "objective",
-    "log_likelihood": "objective",
-    "fit": "fit",
-    "FitResult": "fit",
-    "rank": "compare",
-    "compare": "compare",
-    "Comparison": "compare",
-    "Candidate": "compare",
-    "order_lattice": "compare",
-    "InitialRates": "initial_rates",
-    "regress_orders": "initial_rates",
-    "initial_rates": "initial_rates",
-    "sample": "posterior",
-    "Posterior": "posterior",
-    "profile_intervals": "profile",
-    "Profiles": "profile",
-    "format_posterior": "report",
-    "write_posterior": "report",
-    "plot_corner": "plots",
-    "plot_bands": "plots",
-    "plot_profiles": "plots",
-    "format_fit": "report",
-    "write_fit": "report",
-    "format_ranking": "report",
-    "write_ranking": "report",
-    "plot_traces": "plots",
-    "plot_residuals": "plots",
-    "plot_trajectory": "plots",
-    "figures": "plots",
-    "plot_weights": "plots",
-    "plot_initial_rates": "plots",
-    "plot_arrhenius": "plots",
-    "plot_eyring": "plots",
-    "plot_prediction": "plots",
-    "rate_constant": "temperature",
-    "activation_parameters": "activation",
-    "Activation": "activation",
-    "with_posterior": "activation",
-    "with_profile": "activation",
-    "TwoStage": "two_stage",
-    "predict": "prediction",
-    "Prediction": "prediction",
-    "basis_from_fit": "prediction",
-    "format_activation": "report",
-    "read_table": "instrument",
-    "absorbance": "spectra",
-    "significant_components": "spectra",
-    "SignalFit": "spectra",
-    "format_signals": "report",
-    "plot_spectra": "plots",
-    "plot_wavelength_traces": "plots",
-    "plot_residual_map": "plots",
-    "plot_components": "plots",
+    "KinfitError": "core.errors",
+    "KinfitWarning": "core.errors",
+    "Mechanism": "inputs.mechanism",
+    "Step": "inputs.mechanism",
+    "Parameter": "inputs.mechanism",
+    "load_mechanism": "inputs.mechanism",
+    "mechanism_from_text": "inputs.mechanism",
+    "with_fixed": "inputs.mechanism",
+    "Experiment": "inputs.experiment",
+    "Run": "inputs.experiment",
+    "Trace": "inputs.experiment",
+    "load_experiment": "inputs.experiment",
+    "simulate": "numerics.simulate",
+    "Trajectory": "numerics.simulate",
+    "residuals": "numerics.problem",
+    "log_likelihood": "numerics.problem",
+    "fit": "estimation.least_squares",
+    "FitResult": "estimation.least_squares",
+    "rank": "analysis.ranking",
+    "compare": "analysis.ranking",
+    "Comparison": "analysis.ranking",
+    "Candidate": "analysis.ranking",
+    "order_lattice": "analysis.ranking",
+    "InitialRates": "analysis.initial_rates",
+    "regress_orders": "analysis.initial_rates",
+    "initial_rates": "analysis.initial_rates",
+    "sample": "estimation.posterior",
+    "Posterior": "estimation.posterior",
+    "profile_intervals": "estimation.profile",
+    "Profiles": "estimation.profile",
+    "format_value": "core.formatting",
+    "format_posterior": "output.report",
+    "write_posterior": "output.report",
+    "plot_corner": "figures.plots",
+    "plot_bands": "figures.plots",
+    "plot_profiles": "figures.plots",
+    "format_fit": "output.report",
+    "write_fit": "output.report",
+    "format_ranking": "output.report",
+    "write_ranking": "output.report",
+    "plot_traces": "figures.plots",
+    "plot_residuals": "figures.plots",
+    "plot_trajectory": "figures.plots",
+    "make_figures": "figures.overview",
+    "plot_weights": "figures.plots",
+    "plot_initial_rates": "figures.plots",
+    "plot_arrhenius": "figures.plots",
+    "plot_eyring": "figures.plots",
+    "plot_prediction": "figures.plots",
+    "rate_constant": "inputs.temperature",
+    "activation_parameters": "analysis.activation",
+    "Activation": "analysis.activation",
+    "with_posterior": "analysis.activation",
+    "with_profile": "analysis.activation",
+    "TwoStage": "analysis.two_stage",
+    "predict": "analysis.prediction",
+    "Prediction": "analysis.prediction",
+    "basis_from_fit": "analysis.prediction",
+    "format_activation": "output.report",
+    "read_table": "inputs.instrument",
+    "absorbance": "numerics.spectra",
+    "significant_components": "numerics.spectra",
+    "SignalFit": "numerics.spectra",
+    "format_signals": "output.report",
+    "plot_spectra": "figures.plots",
+    "plot_wavelength_traces": "figures.plots",
+    "plot_residual_map": "figures.plots",
+    "plot_components": "figures.plots",
 }
 
-__all__ = sorted(_EXPORTS) + ["__version__"]
+__all__ = sorted(_EXPORTS) + ["__version__", "register_notebook_display"]
 
 
 def __getattr__(name):
@@ -100,21 +101,47 @@ def __dir__():
     return __all__
 
 
-class _Package(type(sys.modules[__name__])):
-    """The package module, keeping exported functions ahead of same-named submodules.
+# Notebook display: IPython's HTML formatter learns the result types by name,
+# so results carry no rendering code and no layer below output imports it.
+_DISPLAYS = (
+    ("kinfit.estimation.least_squares", "FitResult", "fit_html"),
+    ("kinfit.estimation.posterior", "Posterior", "posterior_html"),
+    ("kinfit.analysis.ranking", "Comparison", "ranking_html"),
+)
 
-    Importing a submodule binds it as an attribute of its package, so once
-    ``kinfit.fit`` (the module) is imported, ``kinfit.fit`` would name the
-    module rather than the function. Binding such a submodule is skipped here;
-    the submodule stays importable through ``sys.modules`` and
-    ``from kinfit.fit import ...``.
+
+def register_notebook_display(shell=None):
+    """Show kinfit results as HTML tables in IPython and Jupyter.
+
+    Called on ``import kinfit`` inside IPython; call it again with a shell
+    started later. Each formatter imports :mod:`kinfit.output.notebook` on
+    first display, so importing kinfit stays light.
+
+    Parameters
+    ----------
+    shell : IPython InteractiveShell or None
+        ``None`` uses the running shell, if there is one.
+
+    Returns
+    -------
+    bool
+        Whether a shell was found and the formatters registered.
     """
+    if shell is None:
+        ipython = sys.modules.get("IPython")
+        shell = ipython.get_ipython() if ipython is not None else None
+    if shell is None:
+        return False
+    formatter = shell.display_formatter.formatters["text/html"]
+    for module, cls, function in _DISPLAYS:
+        formatter.for_type_by_name(module, cls, _display(function))
+    return True
 
-    def __setattr__(self, name, value):
-        if (name in _EXPORTS and isinstance(value, type(sys))
-                and value.__name__ == f"{__name__}.{name}"):
-            return
-        super().__setattr__(name, value)
+
+def _display(function):
+    def show(result):
+        return getattr(import_module("kinfit.output.notebook"), function)(result)
+    return show
 
 
-sys.modules[__name__].__class__ = _Package
+register_notebook_display()

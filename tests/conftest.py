@@ -165,10 +165,10 @@ def _eyring_study(folder):
 @pytest.fixture(scope="session")
 def arrhenius_study(tmp_path_factory):
     """The Arrhenius study fitted globally (and its two-stage analysis)."""
-    from kinfit.data import load_experiment
-    from kinfit.fit import fit
-    from kinfit.mechanism import load_mechanism
-    from kinfit.two_stage import two_stage
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.estimation.least_squares import fit
+    from kinfit.inputs.mechanism import load_mechanism
+    from kinfit.analysis.two_stage import two_stage
 
     folder = tmp_path_factory.mktemp("arrhenius")
     truth, reference = _arrhenius_study(folder)
@@ -183,9 +183,9 @@ def arrhenius_study(tmp_path_factory):
 @pytest.fixture(scope="session")
 def eyring_study(tmp_path_factory):
     """The Eyring study fitted globally."""
-    from kinfit.data import load_experiment
-    from kinfit.fit import fit
-    from kinfit.mechanism import load_mechanism
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.estimation.least_squares import fit
+    from kinfit.inputs.mechanism import load_mechanism
 
     folder = tmp_path_factory.mktemp("eyring")
     truth = _eyring_study(folder)
@@ -209,9 +209,9 @@ def synthetic_power_law(folder, seed, truth=(0.02, 1.0, 2.0), relative=0.01,
     """
     import numpy as np
 
-    from kinfit.data import load_experiment
-    from kinfit.mechanism import load_mechanism
-    from kinfit.simulate import simulate
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.inputs.mechanism import load_mechanism
+    from kinfit.numerics.simulate import simulate
 
     k, m, n = truth
     folder = Path(folder)
@@ -247,7 +247,7 @@ def small_ranking(tmp_path_factory):
     """
     import numpy as np
 
-    from kinfit.compare import rank
+    from kinfit.analysis.ranking import rank
 
     folder = tmp_path_factory.mktemp("ranking")
     exp, mech = synthetic_power_law(folder, seed=21, times=np.linspace(0, 100, 11),
@@ -312,9 +312,9 @@ def write_line_problem(folder, declared=True, seed=3, n=11):
 @pytest.fixture(scope="session")
 def line_posterior(tmp_path_factory):
     """A short posterior of the straight-line problem (declared noise), shared by tests."""
-    from kinfit.data import load_experiment
-    from kinfit.mechanism import load_mechanism
-    from kinfit.posterior import sample
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.inputs.mechanism import load_mechanism
+    from kinfit.estimation.posterior import sample
 
     paths = write_line_problem(tmp_path_factory.mktemp("line"))
     post = sample(load_experiment(paths["experiment"]), load_mechanism(paths["model"]),

@@ -8,10 +8,10 @@ import numpy as np
 import pytest
 import scipy.constants as sc
 
-from kinfit.activation import (activation_parameters, si_factor, with_posterior, with_profile)
-from kinfit.errors import KinfitError
-from kinfit.temperature import rate_constant
-from kinfit.units import Units
+from kinfit.analysis.activation import (activation_parameters, si_factor, with_posterior, with_profile)
+from kinfit.core.errors import KinfitError
+from kinfit.inputs.temperature import rate_constant
+from kinfit.core.units import Units
 
 
 def test_arrhenius_study_recovers_ea_and_k_ref(arrhenius_study):

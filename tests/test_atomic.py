@@ -6,7 +6,7 @@ import json
 
 import pytest
 
-from kinfit.atomic import atomic_path, write_json, write_text
+from kinfit.core.atomic import atomic_path, write_json, write_text
 
 
 def test_failed_write_leaves_the_old_file(tmp_path):

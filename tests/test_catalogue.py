@@ -17,7 +17,7 @@ import pytest
 from typer.testing import CliRunner
 
 from conftest import DATA
-from kinfit.cli import app
+from kinfit.app.cli import app
 
 if sys.version_info >= (3, 11):
     import tomllib

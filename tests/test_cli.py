@@ -12,7 +12,7 @@ from typer.testing import CliRunner
 
 from conftest import (DEMO, FIRST_ORDER_MODEL, MODELS, SMALL_EXPERIMENT, SMALL_TRACES, write,
                       write_line_problem)
-from kinfit.cli import app
+from kinfit.app.cli import app
 
 runner = CliRunner()
 
@@ -150,7 +150,7 @@ def test_bad_input_does_not_touch_an_existing_output_folder(tmp_path):
 def test_console_script_exit_codes(tmp_path):
     # A real process: exit code 2 and no traceback on stderr.
     write(tmp_path, "model.toml", FIRST_ORDER_MODEL)
-    proc = subprocess.run([sys.executable, "-m", "kinfit.cli", "fit", str(tmp_path / "none.toml"),
+    proc = subprocess.run([sys.executable, "-m", "kinfit.app.cli", "fit", str(tmp_path / "none.toml"),
                            "--model", str(tmp_path / "model.toml")],
                           capture_output=True, text=True)
     assert proc.returncode == 2
@@ -352,7 +352,7 @@ def test_rank_needs_two_candidates_and_a_known_criterion(rank_inputs):
 
 
 def test_progress_bar_counts_fits():
-    from kinfit.cli import _ProgressBar
+    from kinfit.app.cli import _ProgressBar
 
     bar = _ProgressBar("fitting candidates")
     for done in (1, 2, 3):
@@ -414,10 +414,10 @@ def test_killed_sampler_resumes_to_the_same_chain(tmp_path):
 
     import numpy as np
 
-    from kinfit.posterior import load_chain
+    from kinfit.estimation.posterior import load_chain
 
     paths = write_line_problem(tmp_path)
-    command = [sys.executable, "-m", "kinfit.cli"]
+    command = [sys.executable, "-m", "kinfit.app.cli"]
     options = ["--steps", "300", "--checkpoint-every", "10", "--no-profile"]
     killed = tmp_path / "killed"
     proc = subprocess.Popen(command + _sample_args(paths, killed, *options),

@@ -15,13 +15,13 @@ from statsmodels.tools.eval_measures import aicc as sm_aicc
 
 import test_objective
 from conftest import MODELS, synthetic_power_law
-from kinfit.compare import (CRITERIA, Candidate, _structure, _on_boundary, _warm_start,
+from kinfit.analysis.ranking import (CRITERIA, Candidate, _structure, _on_boundary, _warm_start,
                             compare, criterion_weights, evidence_aicc, evidence_bic, f_test,
                             fit_candidates, fitted_orders, likelihood_ratio_test, model_averages,
                             nests, order_lattice, parse_order_grid, rank)
-from kinfit.errors import KinfitError
-from kinfit.fit import fit
-from kinfit.mechanism import load_mechanism, mechanism_from_text, with_fixed
+from kinfit.core.errors import KinfitError
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text, with_fixed
 
 
 # ------------------------------------------------- criteria and nested tests
@@ -353,7 +353,7 @@ def test_true_orders_rank_first_in_seeded_replicates(tmp_path):
 
 
 def test_rank_refusals(tmp_path, small):
-    from kinfit.data import load_experiment
+    from kinfit.inputs.experiment import load_experiment
 
     exp = load_experiment(small["experiment"])
     mech = load_mechanism(small["model"])
@@ -367,7 +367,7 @@ def test_rank_refusals(tmp_path, small):
 
 
 def test_compare_refuses_fits_to_different_data(linear_pair, small):
-    from kinfit.data import load_experiment
+    from kinfit.inputs.experiment import load_experiment
 
     comparison, _, _ = linear_pair
     other = fit(load_experiment(small["experiment"]), load_mechanism(small["model"]), starts=1)
@@ -381,7 +381,7 @@ def test_reversible_candidates_skip_the_cross_check(small):
     # A <=> P against the same with the back reaction switched off (k2 fixed at
     # its bound 0): nested, on the boundary, and no one-step irreversible
     # candidate for the initial-rates method.
-    from kinfit.data import load_experiment
+    from kinfit.inputs.experiment import load_experiment
 
     exp = load_experiment(small["experiment"])
     both = mechanism_from_text('[[steps]]\nreaction = "A <=> P"\nrate = "k * [A]"\n'

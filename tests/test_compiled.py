@@ -9,10 +9,10 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from conftest import MODELS
-from kinfit.compiled import (KIND_INITIAL, KIND_LOG_K, KIND_ORDER, OK, STIFF, integrate_batch,
+from kinfit.numerics.compiled import (KIND_INITIAL, KIND_LOG_K, KIND_ORDER, OK, STIFF, integrate_batch,
                              integrate_stiff)
-from kinfit.mechanism import load_mechanism, mechanism_from_text
-from kinfit.simulate import integrate_flat, simulate
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
+from kinfit.numerics.simulate import integrate_flat, simulate
 
 
 def run(mech, y0, values, t, sens=None, rtol=1e-10):
@@ -35,7 +35,7 @@ def test_a_plus_b_closed_form():
 @pytest.mark.parametrize("path", sorted(MODELS.glob("*.toml")), ids=lambda p: p.name)
 def test_every_model_agrees_with_scipy_radau(path):
     # Reference: scipy's Radau at rtol 1e-12 on the same right-hand side.
-    from kinfit.mechanism import rhs
+    from kinfit.inputs.mechanism import rhs
 
     mech = load_mechanism(path)
     values = np.array([mech.values()[n] for n in mech.parameter_names])

@@ -9,8 +9,8 @@ from hypothesis import strategies as st
 from scipy.constants import convert_temperature
 
 from conftest import DEMO, SMALL_EXPERIMENT, SMALL_TRACES
-from kinfit.data import initial_name, load_experiment
-from kinfit.errors import KinfitError
+from kinfit.inputs.experiment import initial_name, load_experiment
+from kinfit.core.errors import KinfitError
 
 
 def test_demo_experiment_loads():
@@ -242,7 +242,7 @@ def test_any_experiment_text_gives_an_experiment_or_a_kinfit_error(files, text):
                         "value,species,time,run,note"]))
 def test_fast_and_careful_long_readers_agree(tmp_path_factory, rows, header):
     # The fast numeric reader must return exactly what the careful reader does.
-    from kinfit.data import _careful_long, _fast_long
+    from kinfit.inputs.experiment import _careful_long, _fast_long
 
     cols = [c.lower() for c in header.split(",")]
     lines = [header] + [",".join({"run": r, "time": repr(t), "species": s, "value": repr(v),

@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 
 from conftest import DEMO
-from kinfit import demo
+from kinfit.app import demo
 
 
 def test_committed_demo_files_match_the_generator(tmp_path):

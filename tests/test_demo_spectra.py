@@ -7,11 +7,11 @@ import numpy as np
 import pytest
 
 from conftest import DEMO
-from kinfit import demo_spectra
-from kinfit.data import load_experiment
-from kinfit.fit import fit
-from kinfit.instrument import read_table
-from kinfit.mechanism import load_mechanism
+from kinfit.app import demo_spectra
+from kinfit.inputs.experiment import load_experiment
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.instrument import read_table
+from kinfit.inputs.mechanism import load_mechanism
 
 SPECTRA_DEMO = DEMO / "spectra"
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from kinfit.diagnostics import MAX_RHAT, diagnose
+from kinfit.estimation.diagnostics import MAX_RHAT, diagnose
 
 
 def _ar1(rng, n_steps, n_walkers, n_dim, rho):

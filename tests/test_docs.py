@@ -20,15 +20,3 @@ def test_developers_guide_lists_every_module():
             assert f"`{path.name}`" in guide, path.name
 
 
-def test_exported_functions_survive_importing_their_modules():
-    # `import kinfit.fit` binds the submodule on the package; kinfit.fit must
-    # still be the function a notebook user calls (README's worked example).
-    import importlib
-
-    import kinfit
-
-    for name in ("fit", "simulate", "residuals", "log_likelihood"):
-        module = importlib.import_module(f"kinfit.{name}" if name in ("fit", "simulate")
-                                         else "kinfit.objective")
-        assert callable(getattr(kinfit, name)), name
-        assert not isinstance(getattr(kinfit, name), type(module)), name

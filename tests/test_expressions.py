@@ -6,7 +6,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from kinfit.expressions import (MAX_DEPTH, MAX_LENGTH, Affine, ParseError, parse_expression,
+from kinfit.inputs.expressions import (MAX_DEPTH, MAX_LENGTH, Affine, ParseError, parse_expression,
                                 parse_reaction, to_power_law)
 
 

@@ -13,11 +13,11 @@ import numpy as np
 import pytest
 
 from conftest import DEMO, ROOT, write
-from kinfit.data import load_experiment
-from kinfit.fit import fit
-from kinfit.mechanism import load_mechanism, mechanism_from_text
-from kinfit.report import format_fit
-from kinfit.simulate import integrate_flat
+from kinfit.inputs.experiment import load_experiment
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
+from kinfit.output.report import format_fit
+from kinfit.numerics.simulate import integrate_flat
 
 
 @pytest.fixture
@@ -123,7 +123,7 @@ def _complete(path):
 
 def test_killed_runs_leave_previous_or_new_complete_outputs(tmp_path):
     out = tmp_path / "out"
-    cmd = [sys.executable, "-m", "kinfit.cli", "fit", str(DEMO / "experiment.toml"), "--model",
+    cmd = [sys.executable, "-m", "kinfit.app.cli", "fit", str(DEMO / "experiment.toml"), "--model",
            str(DEMO / "thiol_addition.toml"), "--out", str(out), "--starts", "2"]
     subprocess.run(cmd, check=True, capture_output=True, cwd=ROOT)
     before = {p.name: p.read_bytes() for p in out.iterdir()}

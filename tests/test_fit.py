@@ -8,12 +8,12 @@ import numpy as np
 import pytest
 
 from conftest import DEMO, write
-from kinfit import demo
-from kinfit.data import load_experiment
-from kinfit.errors import KinfitError
-from kinfit.fit import fit
-from kinfit.mechanism import load_mechanism, mechanism_from_text
-from kinfit.simulate import simulate
+from kinfit.app import demo
+from kinfit.inputs.experiment import load_experiment
+from kinfit.core.errors import KinfitError
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
+from kinfit.numerics.simulate import simulate
 
 # NIST/ITL Statistical Reference Datasets, Nonlinear Least Squares Regression,
 # dataset BoxBOD (Box et al. 1978), "higher level of difficulty".

@@ -17,10 +17,10 @@ import numpy as np
 from hypothesis import given
 from hypothesis import strategies as st
 
-from kinfit.data import load_experiment
-from kinfit.errors import KinfitError
-from kinfit.expressions import ParseError, parse_reaction, to_power_law
-from kinfit.mechanism import load_mechanism, mechanism_from_text
+from kinfit.inputs.experiment import load_experiment
+from kinfit.core.errors import KinfitError
+from kinfit.inputs.expressions import ParseError, parse_reaction, to_power_law
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
 
 RATE_ALPHABET = "kmnAB[]()^*/+-. 0123456789eE_·×−"
 names = st.text(alphabet=string.ascii_letters + string.digits + "_", min_size=1, max_size=6)
@@ -185,7 +185,7 @@ INSTRUMENT_ALPHABET = "time,;\t0123456789.,-eE \nAB()[]/\"xminsµ#:="
 
 @given(st.text(alphabet=st.sampled_from(list(INSTRUMENT_ALPHABET)), max_size=300))
 def test_instrument_table_text(text):
-    from kinfit.instrument import table_from_text
+    from kinfit.inputs.instrument import table_from_text
 
     try:
         table = table_from_text(text, "fuzz.csv")
@@ -201,7 +201,7 @@ def test_instrument_table_text(text):
 
 @given(st.binary(max_size=600))
 def test_instrument_table_bytes(tmp_path_factory, blob):
-    from kinfit.instrument import read_table
+    from kinfit.inputs.instrument import read_table
 
     path = tmp_path_factory.mktemp("inst") / "export.csv"
     path.write_bytes(blob)
@@ -215,7 +215,7 @@ def test_instrument_table_bytes(tmp_path_factory, blob):
                  st.text(alphabet=st.sampled_from(list(INSTRUMENT_ALPHABET)),
                          max_size=400).map(lambda t: t.encode("utf-8"))))
 def test_spectrum_matrix(tmp_path_factory, blob):
-    from kinfit.signals import read_spectrum
+    from kinfit.inputs.signals import read_spectrum
 
     path = tmp_path_factory.mktemp("spec") / "spectrum.csv"
     path.write_bytes(blob)

@@ -13,9 +13,9 @@ import pytest
 from typer.testing import CliRunner
 
 from conftest import ROOT
-from kinfit.cli import app
-from kinfit.errors import KinfitError
-from kinfit.html_report import build_report
+from kinfit.app.cli import app
+from kinfit.core.errors import KinfitError
+from kinfit.output.html import build_report
 
 ARTIFACTS = ROOT / "tests" / "artifacts"
 

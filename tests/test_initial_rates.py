@@ -9,12 +9,12 @@ import pytest
 import statsmodels.api as sm
 
 from conftest import write
-from kinfit.data import load_experiment
-from kinfit.errors import KinfitError
-from kinfit.initial_rates import (check_orders, initial_rates, initial_slope, polynomial_fit,
+from kinfit.inputs.experiment import load_experiment
+from kinfit.core.errors import KinfitError
+from kinfit.analysis.initial_rates import (check_orders, initial_rates, initial_slope, polynomial_fit,
                                   rate_constant_at, regress_orders)
-from kinfit.mechanism import mechanism_from_text
-from kinfit.simulate import simulate
+from kinfit.inputs.mechanism import mechanism_from_text
+from kinfit.numerics.simulate import simulate
 
 
 # ---------------------------------------------------------------- slopes

@@ -7,8 +7,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from kinfit.errors import KinfitError
-from kinfit.instrument import read_table, split_unit, table_from_text
+from kinfit.core.errors import KinfitError
+from kinfit.inputs.instrument import read_table, split_unit, table_from_text
 
 
 def test_semicolons_decimal_commas_metadata_and_a_time_unit():

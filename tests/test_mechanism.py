@@ -8,10 +8,10 @@ import numpy as np
 import pytest
 
 from conftest import MODELS
-from kinfit.errors import KinfitError, KinfitWarning
-from kinfit.mechanism import (format_rate_law, jacobian, load_mechanism, mechanism_from_text,
+from kinfit.core.errors import KinfitError, KinfitWarning
+from kinfit.inputs.mechanism import (format_rate_law, jacobian, load_mechanism, mechanism_from_text,
                               rhs)
-from kinfit.simulate import simulate
+from kinfit.numerics.simulate import simulate
 
 
 @pytest.mark.parametrize("path", sorted(MODELS.glob("*.toml")), ids=lambda p: p.name)
@@ -220,7 +220,7 @@ def test_no_warning_for_a_clean_model():
 
 
 def test_with_fixed_and_with_start():
-    from kinfit.mechanism import with_fixed, with_start
+    from kinfit.inputs.mechanism import with_fixed, with_start
 
     free = load_mechanism(MODELS / "power_law_two.toml")
     fixed = with_fixed(free, {"m": 1.5}, name="m fixed")

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from statsmodels.sandbox.stats.runs import runstest_1samp
 
-from kinfit.misfit import runs_test
+from kinfit.estimation.residual_checks import runs_test
 
 
 @pytest.mark.parametrize("seed", range(5))
@@ -35,10 +35,10 @@ def test_one_sign_only():
 
 
 def test_checks_of_a_fit(small):
-    from kinfit.data import load_experiment
-    from kinfit.fit import fit
-    from kinfit.mechanism import load_mechanism
-    from kinfit.misfit import check_residuals
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.estimation.least_squares import fit
+    from kinfit.inputs.mechanism import load_mechanism
+    from kinfit.estimation.residual_checks import check_residuals
 
     result = fit(load_experiment(small["experiment"]), load_mechanism(small["model"]), starts=1)
     checks = check_residuals(result)

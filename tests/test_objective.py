@@ -10,10 +10,10 @@ import statsmodels.api as sm
 from scipy.stats import norm
 
 from conftest import write
-from kinfit.data import load_experiment
-from kinfit.fit import fit
-from kinfit.mechanism import load_mechanism, mechanism_from_text
-from kinfit.objective import build_problem, information_criteria, log_likelihood, residuals
+from kinfit.inputs.experiment import load_experiment
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
+from kinfit.numerics.problem import build_problem, information_criteria, log_likelihood, residuals
 
 
 def zero_order_case(folder, noise=""):

@@ -6,10 +6,10 @@ import numpy as np
 import pytest
 
 from conftest import MODELS
-from kinfit.data import load_experiment
-from kinfit.errors import KinfitError
-from kinfit.mechanism import load_mechanism, mechanism_from_text
-from kinfit.observables import build_observation, observe
+from kinfit.inputs.experiment import load_experiment
+from kinfit.core.errors import KinfitError
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
+from kinfit.numerics.observation import build_observation, observe
 
 
 def test_observation_layout(files):

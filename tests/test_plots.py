@@ -6,13 +6,13 @@ import numpy as np
 import pytest
 
 from conftest import MODELS
-from kinfit.data import load_experiment
-from kinfit.fit import fit
-from kinfit.mechanism import load_mechanism
-from kinfit.plots import (plot_bands, plot_corner, plot_initial_rates, plot_profiles,
+from kinfit.inputs.experiment import load_experiment
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.mechanism import load_mechanism
+from kinfit.figures.plots import (plot_bands, plot_corner, plot_initial_rates, plot_profiles,
                           plot_residuals, plot_traces, plot_trajectory, plot_weights)
-from kinfit.simulate import simulate
-from kinfit.units import Units
+from kinfit.numerics.simulate import simulate
+from kinfit.core.units import Units
 
 
 @pytest.fixture(scope="module")
@@ -54,15 +54,17 @@ def test_plot_trajectory_draws_every_species():
     assert ax.get_xlabel() == "time (s)" and ax.get_title() == "consecutive"
 
 
-def test_numerics_do_not_import_matplotlib():
-    # Only kinfit.plots may import matplotlib (house rule).
+def test_layers_below_figures_do_not_import_matplotlib():
+    # Only kinfit.figures may import matplotlib (house rule): every module of
+    # the layers below it is imported and matplotlib must still be absent.
     import subprocess
     import sys
 
-    code = ("import sys, kinfit.fit, kinfit.simulate, kinfit.data, kinfit.report, "
-            "kinfit.temperature, kinfit.activation, kinfit.two_stage, kinfit.prediction, "
-            "kinfit.compare, kinfit.initial_rates, kinfit.posterior, kinfit.profile, "
-            "kinfit.diagnostics; "
+    code = ("import sys, pkgutil, importlib, kinfit\n"
+            "for layer in ('core', 'inputs', 'numerics', 'estimation', 'analysis'):\n"
+            "    pkg = importlib.import_module('kinfit.' + layer)\n"
+            "    for info in pkgutil.walk_packages(pkg.__path__, pkg.__name__ + '.'):\n"
+            "        importlib.import_module(info.name)\n"
             "print('matplotlib' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
@@ -71,8 +73,8 @@ def test_numerics_do_not_import_matplotlib():
 # ------------------------------------------------------------ temperature
 
 def test_arrhenius_and_eyring_plots(arrhenius_study):
-    from kinfit.activation import activation_parameters
-    from kinfit.plots import plot_arrhenius, plot_eyring
+    from kinfit.analysis.activation import activation_parameters
+    from kinfit.figures.plots import plot_arrhenius, plot_eyring
 
     acts = activation_parameters(arrhenius_study["result"])
     stage = arrhenius_study["two_stage"]
@@ -95,8 +97,8 @@ def test_arrhenius_and_eyring_plots(arrhenius_study):
 
 
 def test_prediction_plot_flags_extrapolation(arrhenius_study):
-    from kinfit.plots import plot_prediction
-    from kinfit.prediction import basis_from_fit, predict
+    from kinfit.figures.plots import plot_prediction
+    from kinfit.analysis.prediction import basis_from_fit, predict
 
     basis = basis_from_fit(arrhenius_study["result"])
     pred = predict(basis, {"A": 0.8}, np.linspace(0, 100, 21), 333.15, draws=20)
@@ -183,7 +185,7 @@ def spectra_fits():
 
 
 def test_spectrum_figures(spectra_fits):
-    from kinfit.plots import plot_components, plot_residual_map, plot_spectra, \
+    from kinfit.figures.plots import plot_components, plot_residual_map, plot_spectra, \
         plot_wavelength_traces
 
     result = spectra_fits[0]

@@ -10,11 +10,11 @@ import pytest
 import statsmodels.api as sm
 
 from conftest import LINE_SIGMA, write_line_problem
-from kinfit.data import load_experiment
-from kinfit.errors import KinfitError
-from kinfit.fit import fit
-from kinfit.mechanism import load_mechanism
-from kinfit.posterior import (CHAIN_FILE, compare_intervals, load_chain, run_ensemble, sample,
+from kinfit.inputs.experiment import load_experiment
+from kinfit.core.errors import KinfitError
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.mechanism import load_mechanism
+from kinfit.estimation.posterior import (CHAIN_FILE, compare_intervals, load_chain, run_ensemble, sample,
                               write_chain)
 
 

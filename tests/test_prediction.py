@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 import scipy.constants as sc
 
-from kinfit.activation import activation_parameters
-from kinfit.errors import KinfitError
-from kinfit.prediction import (FittedRange, basis_from_fit, basis_to_dict, extrapolation_flags,
+from kinfit.analysis.activation import activation_parameters
+from kinfit.core.errors import KinfitError
+from kinfit.analysis.prediction import (FittedRange, basis_from_fit, basis_to_dict, extrapolation_flags,
                                fitted_range, load_basis, predict)
 
 TIMES = np.linspace(0.0, 200.0, 41)

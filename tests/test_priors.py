@@ -9,9 +9,9 @@ import pytest
 from hypothesis import given, settings, strategies as st
 from scipy import stats
 
-from kinfit.errors import KinfitError
-from kinfit.mechanism import mechanism_from_text
-from kinfit.priors import Prior, parse_prior
+from kinfit.core.errors import KinfitError
+from kinfit.inputs.mechanism import mechanism_from_text
+from kinfit.inputs.priors import Prior, parse_prior
 
 
 def test_normal_matches_scipy():

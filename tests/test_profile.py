@@ -7,11 +7,11 @@ import pytest
 import statsmodels.api as sm
 
 from conftest import LINE_SIGMA, write_line_problem
-from kinfit.data import load_experiment
-from kinfit.errors import KinfitError
-from kinfit.fit import fit
-from kinfit.mechanism import load_mechanism
-from kinfit.profile import profile_intervals
+from kinfit.inputs.experiment import load_experiment
+from kinfit.core.errors import KinfitError
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.mechanism import load_mechanism
+from kinfit.estimation.profile import profile_intervals
 
 
 def test_straight_line_profile_equals_the_ols_interval(tmp_path):

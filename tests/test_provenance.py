@@ -6,9 +6,9 @@ import hashlib
 
 from conftest import DEMO
 from kinfit import __version__
-from kinfit.data import load_experiment
-from kinfit.mechanism import load_mechanism
-from kinfit.provenance import collect, experiment_inputs, sha256
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism
+from kinfit.output.provenance import collect, experiment_inputs, sha256
 
 
 def test_hashes_match_hashlib():

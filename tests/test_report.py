@@ -7,10 +7,10 @@ import json
 import pytest
 
 from conftest import MODELS
-from kinfit.data import load_experiment
-from kinfit.fit import fit
-from kinfit.mechanism import load_mechanism
-from kinfit.report import (CAUTIONS, format_fit, format_posterior, format_value, write_fit,
+from kinfit.inputs.experiment import load_experiment
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.mechanism import load_mechanism
+from kinfit.output.report import (CAUTIONS, format_fit, format_posterior, format_value, write_fit,
                            write_posterior)
 
 
@@ -57,9 +57,9 @@ def test_write_fit(tmp_path, result):
 # ------------------------------------------------------------ temperature
 
 def test_temperature_summary_and_files(tmp_path, arrhenius_study):
-    from kinfit.activation import activation_parameters
-    from kinfit.prediction import basis_from_fit
-    from kinfit.report import format_activation, temperature_outputs
+    from kinfit.analysis.activation import activation_parameters
+    from kinfit.analysis.prediction import basis_from_fit
+    from kinfit.output.report import format_activation, temperature_outputs
 
     result = arrhenius_study["result"]
     acts = activation_parameters(result)
@@ -87,8 +87,8 @@ def test_temperature_summary_and_files(tmp_path, arrhenius_study):
 def test_write_prediction(tmp_path, arrhenius_study):
     import numpy as np
 
-    from kinfit.prediction import basis_from_fit, predict
-    from kinfit.report import format_prediction, write_prediction
+    from kinfit.analysis.prediction import basis_from_fit, predict
+    from kinfit.output.report import format_prediction, write_prediction
 
     basis = basis_from_fit(arrhenius_study["result"])
     pred = predict(basis, {"A": 0.8}, np.linspace(0, 100, 11), 333.15, draws=20)
@@ -104,7 +104,7 @@ def test_write_prediction(tmp_path, arrhenius_study):
 
 
 def test_format_ranking(small_ranking):
-    from kinfit.report import format_ranking
+    from kinfit.output.report import format_ranking
 
     comparison, _, _ = small_ranking
     text = format_ranking(comparison, top=3)
@@ -120,7 +120,7 @@ def test_format_ranking(small_ranking):
 
 
 def test_write_ranking(small_ranking, tmp_path):
-    from kinfit.report import write_ranking
+    from kinfit.output.report import write_ranking
 
     comparison, _, _ = small_ranking
     written = write_ranking(tmp_path / "out", comparison)
@@ -161,7 +161,7 @@ def test_write_posterior(line_posterior, tmp_path):
 
 def test_signal_summary_and_files():
     from conftest import DEMO
-    from kinfit.report import format_components, format_signals, signal_outputs
+    from kinfit.output.report import format_components, format_signals, signal_outputs
 
     folder = DEMO / "spectra"
     mech = load_mechanism(folder / "dye_formation.toml")
@@ -186,10 +186,12 @@ def test_notebook_tables_and_figures(result):
 
     import kinfit
 
-    html = result._repr_html_()
+    from kinfit.output.notebook import fit_html
+
+    html = fit_html(result)
     root = ET.fromstring(f"<div>{html}</div>")        # well-formed markup
     assert len(root.findall("table")) == 3 and "s^-1" in html
-    figs = kinfit.figures(result)
+    figs = kinfit.make_figures(result)
     assert set(figs) == {"fit", "residuals"} and figs["fit"].axes
 
 
@@ -199,9 +201,32 @@ def test_notebook_tables_of_posteriors_and_rankings(line_posterior, small_rankin
     import kinfit
 
     line_posterior, small_ranking = line_posterior[0], small_ranking[0]
-    for obj in (line_posterior, small_ranking):
-        html = obj._repr_html_()
+    from kinfit.output.notebook import posterior_html, ranking_html
+
+    for obj, show in ((line_posterior, posterior_html), (small_ranking, ranking_html)):
+        html = show(obj)
         ET.fromstring(f"<div>{html}</div>")
         assert "<table>" in html
-    assert {"corner", "bands", "fit", "residuals"} <= set(kinfit.figures(line_posterior))
-    assert {"weights", "fit"} <= set(kinfit.figures(small_ranking))
+    assert {"corner", "bands", "fit", "residuals"} <= set(kinfit.make_figures(line_posterior))
+    assert {"weights", "fit"} <= set(kinfit.make_figures(small_ranking))
+
+
+def test_the_root_registers_notebook_display_by_type_name(result):
+    # IPython's formatter API (common practice: display_formatter.formatters["text/html"]
+    # .for_type_by_name); a stand-in shell records what kinfit registers.
+    import kinfit
+
+    registered = {}
+
+    class Formatter:
+        def for_type_by_name(self, module, name, func):
+            registered[(module, name)] = func
+
+    class Shell:
+        display_formatter = type("D", (), {"formatters": {"text/html": Formatter()}})()
+
+    assert kinfit.register_notebook_display(Shell())
+    show = registered[(type(result).__module__, type(result).__name__)]
+    assert "<table>" in show(result)
+    assert {("kinfit.estimation.posterior", "Posterior"),
+            ("kinfit.analysis.ranking", "Comparison")} <= set(registered)

@@ -7,9 +7,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from kinfit.data import load_experiment
-from kinfit.errors import KinfitError
-from kinfit.signals import parse_path_length, parse_signals, read_spectrum
+from kinfit.inputs.experiment import load_experiment
+from kinfit.core.errors import KinfitError
+from kinfit.inputs.signals import parse_path_length, parse_signals, read_spectrum
 
 CHANNEL_EXPERIMENT = """
     [units]

@@ -16,9 +16,9 @@ import math
 import numpy as np
 import pytest
 
-from kinfit.errors import KinfitError
-from kinfit.mechanism import mechanism_from_text
-from kinfit.simulate import integrate, simulate
+from kinfit.core.errors import KinfitError
+from kinfit.inputs.mechanism import mechanism_from_text
+from kinfit.numerics.simulate import integrate, simulate
 
 REL = 1e-6  # required agreement with the closed forms
 

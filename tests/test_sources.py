@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import pytest
 
-from kinfit.errors import KinfitError
-from kinfit.sources import decode, find_line, load_toml
+from kinfit.core.errors import KinfitError
+from kinfit.inputs.sources import decode, find_line, load_toml
 
 
 def test_decode_accepts_utf8_bom_utf16_and_crlf():

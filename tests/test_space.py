@@ -9,11 +9,11 @@ import pytest
 from scipy import stats
 
 from conftest import write_line_problem
-from kinfit.data import load_experiment
-from kinfit.errors import KinfitError
-from kinfit.mechanism import load_mechanism
-from kinfit.objective import build_problem
-from kinfit.space import parameter_space
+from kinfit.inputs.experiment import load_experiment
+from kinfit.core.errors import KinfitError
+from kinfit.inputs.mechanism import load_mechanism
+from kinfit.numerics.problem import build_problem
+from kinfit.estimation.space import parameter_space
 
 
 def _problem(folder, declared=True):

@@ -10,12 +10,12 @@ import pytest
 from scipy.optimize import least_squares, lsq_linear, nnls
 
 from conftest import write
-from kinfit.data import load_experiment
-from kinfit.errors import KinfitError
-from kinfit.fit import fit
-from kinfit.mechanism import mechanism_from_text
-from kinfit.objective import build_problem
-from kinfit.spectra import absorbance, significant_components
+from kinfit.inputs.experiment import load_experiment
+from kinfit.core.errors import KinfitError
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.mechanism import mechanism_from_text
+from kinfit.numerics.problem import build_problem
+from kinfit.numerics.spectra import absorbance, significant_components
 
 # --------------------------------------------------------------- NIST Lanczos
 #
@@ -586,7 +586,7 @@ def test_posterior_with_profiled_absorptivities(tmp_path):
     # the offsets are profiled, not sampled; for this nearly linear problem the
     # posterior spread of k matches the fit's standard error from the full
     # Jacobian (Gaussian approximation of the posterior, common practice).
-    from kinfit.posterior import sample
+    from kinfit.estimation.posterior import sample
 
     exp, mech = ab_signal_case(tmp_path)
     post = sample(exp, mech, walkers=16, steps=600, seed=3, starts=1, profile=False,

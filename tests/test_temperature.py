@@ -11,10 +11,10 @@ import pytest
 import scipy.constants as sc
 from hypothesis import given, settings, strategies as st
 
-from kinfit import temperature as tm
-from kinfit.errors import KinfitError
-from kinfit.mechanism import mechanism_from_text
-from kinfit.temperature import (ARRHENIUS, EYRING, TemperatureSpec, RateLaw, join_temperatures,
+from kinfit.inputs import temperature as tm
+from kinfit.core.errors import KinfitError
+from kinfit.inputs.mechanism import mechanism_from_text
+from kinfit.inputs.temperature import (ARRHENIUS, EYRING, TemperatureSpec, RateLaw, join_temperatures,
                                 linear_forms, ln_rate_form, parse_temperature, rate_constant,
                                 reference_temperature)
 

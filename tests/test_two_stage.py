@@ -10,9 +10,9 @@ import scipy.constants as sc
 import statsmodels.api as sm
 from scipy.stats import linregress
 
-from kinfit.activation import activation_parameters
-from kinfit.errors import KinfitError
-from kinfit.two_stage import order_differences, two_stage, weighted_line
+from kinfit.analysis.activation import activation_parameters
+from kinfit.core.errors import KinfitError
+from kinfit.analysis.two_stage import order_differences, two_stage, weighted_line
 
 
 def test_unweighted_line_equals_scipy_linregress(arrhenius_study):

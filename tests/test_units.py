@@ -5,8 +5,8 @@ from __future__ import annotations
 import pytest
 from scipy.constants import convert_temperature
 
-from kinfit.errors import KinfitError
-from kinfit.units import (check_unit, conversion_factor, format_power, parse_units,
+from kinfit.core.errors import KinfitError
+from kinfit.core.units import (check_unit, conversion_factor, format_power, parse_units,
                           rate_constant_unit, to_kelvin)
 
 

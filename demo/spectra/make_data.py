@@ -9,7 +9,7 @@ folder (inputs/spectrometer) and fits them. Run from anywhere:
 
 from pathlib import Path
 
-from kinfit.demo_spectra import write_inputs
+from kinfit.app.demo_spectra import write_inputs
 
 if __name__ == "__main__":
     for path in write_inputs(Path(__file__).resolve().parent).values():

@@ -24,10 +24,10 @@ from pathlib import Path
 
 import numpy as np
 
-from kinfit.mechanism import mechanism_from_text
-from kinfit.simulate import simulate
-from kinfit.temperature import rate_constant, reference_temperature
-from kinfit.units import to_kelvin
+from kinfit.inputs.mechanism import mechanism_from_text
+from kinfit.numerics.simulate import simulate
+from kinfit.inputs.temperature import rate_constant, reference_temperature
+from kinfit.core.units import to_kelvin
 
 SEED = 20261207
 FOLDER = Path(__file__).resolve().parent

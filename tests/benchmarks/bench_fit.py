@@ -24,10 +24,10 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from kinfit.data import load_experiment  # noqa: E402
-from kinfit.fit import fit  # noqa: E402
-from kinfit.mechanism import load_mechanism, mechanism_from_text  # noqa: E402
-from kinfit.simulate import simulate  # noqa: E402
+from kinfit.inputs.experiment import load_experiment  # noqa: E402
+from kinfit.estimation.least_squares import fit  # noqa: E402
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text  # noqa: E402
+from kinfit.numerics.simulate import simulate  # noqa: E402
 
 POWER_LAW = """
 name = "A + B -> P, free orders"

@@ -33,10 +33,10 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from kinfit.compare import _warm_start, fit_candidates, order_lattice, rank  # noqa: E402
-from kinfit.data import load_experiment  # noqa: E402
-from kinfit.fit import fit  # noqa: E402
-from kinfit.mechanism import load_mechanism  # noqa: E402
+from kinfit.analysis.ranking import _warm_start, fit_candidates, order_lattice, rank  # noqa: E402
+from kinfit.inputs.experiment import load_experiment  # noqa: E402
+from kinfit.estimation.least_squares import fit  # noqa: E402
+from kinfit.inputs.mechanism import load_mechanism  # noqa: E402
 
 GRID = {"m_thiol": (0, 0.5, 1, 1.5, 2), "m_acrylate": (0, 0.5, 1, 1.5, 2)}
 

@@ -39,11 +39,11 @@ from scipy.optimize import least_squares
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from kinfit.data import load_experiment  # noqa: E402
-from kinfit.fit import fit  # noqa: E402
-from kinfit.mechanism import mechanism_from_text  # noqa: E402
-from kinfit.objective import build_problem  # noqa: E402
-from kinfit.simulate import simulate  # noqa: E402
+from kinfit.inputs.experiment import load_experiment  # noqa: E402
+from kinfit.estimation.least_squares import fit  # noqa: E402
+from kinfit.inputs.mechanism import mechanism_from_text  # noqa: E402
+from kinfit.numerics.problem import build_problem  # noqa: E402
+from kinfit.numerics.simulate import simulate  # noqa: E402
 
 RTOL, ATOL = 1e-8, 1e-12     # the same tolerances as kinfit's defaults
 SIGMA = 0.005                 # declared noise of the synthetic data
@@ -230,7 +230,7 @@ def main():
 
     import emcee
 
-    from kinfit.posterior import sample
+    from kinfit.estimation.posterior import sample
 
     n_steps = 500 if args.quick else 2000
     t = time.perf_counter()
@@ -277,7 +277,7 @@ def main():
                                     check=True).stdout)
     print(f"  first fit in a new process: {cold:.1f} s with compilation (target < 10 s), "
           f"{warm:.1f} s with the compiled code cached on disk")
-    helps = [median_time(lambda: subprocess.run([sys.executable, "-m", "kinfit.cli", "--help"],
+    helps = [median_time(lambda: subprocess.run([sys.executable, "-m", "kinfit.app.cli", "--help"],
                                                 capture_output=True, check=True), 1)
              for _ in range(5)]
     print(f"  kinfit --help: {statistics.median(helps):.2f} s (target < 1 s)")

@@ -51,8 +51,8 @@ n = { value = 1.0, min = 0, max = 3 }
 
 def make_replicate(folder, seed):
     """Write model, experiment and noisy data of one replicate into `folder`."""
-    from kinfit.mechanism import mechanism_from_text
-    from kinfit.simulate import simulate
+    from kinfit.inputs.mechanism import mechanism_from_text
+    from kinfit.numerics.simulate import simulate
 
     mech = mechanism_from_text(MODEL)
     rng = np.random.default_rng(seed)
@@ -77,9 +77,9 @@ def one_replicate(args):
     seed, walkers, steps, starts = args
     import warnings
 
-    from kinfit.data import load_experiment
-    from kinfit.mechanism import load_mechanism
-    from kinfit.posterior import compare_intervals, sample
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.inputs.mechanism import load_mechanism
+    from kinfit.estimation.posterior import compare_intervals, sample
 
     warnings.simplefilter("ignore")
     with tempfile.TemporaryDirectory() as tmp:

@@ -32,7 +32,7 @@ sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "tests"))
 
 from conftest import synthetic_power_law  # noqa: E402
-from kinfit.compare import rank  # noqa: E402
+from kinfit.analysis.ranking import rank  # noqa: E402
 
 TRUTH = {"m": 1.0, "n": 2.0}
 GRID = {"m": (0, 0.5, 1, 1.5, 2), "n": (1, 1.5, 2, 2.5, 3)}

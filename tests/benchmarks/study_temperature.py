@@ -30,11 +30,11 @@ from conftest import _arrhenius_study  # noqa: E402  (the same generator as the 
 
 
 def replicate(seed, folder):
-    from kinfit.activation import activation_parameters
-    from kinfit.data import load_experiment
-    from kinfit.fit import fit
-    from kinfit.mechanism import load_mechanism
-    from kinfit.two_stage import two_stage
+    from kinfit.analysis.activation import activation_parameters
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.estimation.least_squares import fit
+    from kinfit.inputs.mechanism import load_mechanism
+    from kinfit.analysis.two_stage import two_stage
 
     truth, _ = _arrhenius_study(folder, seed=seed)
     exp = load_experiment(folder / "experiment.toml")

@@ -1,0 +1,708 @@
+"""Experiments: runs, measured traces, initial conditions, units and noise.
+
+An experiment file (TOML) names the units, the runs with their starting
+concentrations (and temperatures), the measurement noise and where the data
+are. Two data layouts are read:
+
+* long: one CSV with columns ``run,time,species,value`` for all runs
+  (named by ``[data] file``);
+* wide: one CSV per run with a ``time`` column and one column per species
+  (named by the run's ``file``); an empty cell means "not measured then".
+  Wide files are read as instruments write them (see
+  :mod:`kinfit.instrument`: separators, decimal commas, metadata lines, a
+  unit in the time header, a ``run`` column for several runs in one file).
+
+Spectrometer signals (Beer–Lambert channels and full spectra) are declared
+in a ``[signals]`` table, read by :mod:`kinfit.signals`; a run's ``spectrum``
+names its matrix of spectra, ``path_length`` its cell and ``start`` the time
+before which readings are left out.
+
+Every problem is reported with the file, the line and what was expected.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import re
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from kinfit.core.errors import KinfitError, KinfitWarning, where
+from kinfit.inputs.instrument import MAX_MAGNITUDE, check_times, read_table
+from kinfit.inputs.mechanism import Parameter
+from kinfit.inputs.signals import parse_path_length, parse_signals, read_spectrum, table_times
+from kinfit.inputs.sources import decode, find_line, load_toml, resolve_file
+from kinfit.core.units import Units, parse_units, to_kelvin
+
+__all__ = ["Trace", "Run", "Noise", "Experiment", "load_experiment", "initial_name",
+           "offset_name", "ROLE_INITIAL", "ROLE_TIME_OFFSET", "MIN_POINTS"]
+
+ROLE_INITIAL = "initial concentration"
+ROLE_TIME_OFFSET = "time offset"
+MIN_POINTS = 3
+NEGATIVE_NOISE = 0.05   # a reading below -5 % of its trace's largest is not noise around 0
+
+_EXPERIMENT_KEYS = {"name", "description", "units", "data", "noise", "runs", "temperature",
+                    "signals"}
+_RUN_KEYS = {"name", "temperature", "initial", "file", "time_offset", "path_length", "start",
+             "spectrum"}
+_LONG_COLUMNS = ("run", "time", "species", "value")
+
+
+@dataclass(frozen=True)
+class Trace:
+    """Measurements of one species in one run.
+
+    Attributes
+    ----------
+    species : str
+    times : ndarray [n]
+        Strictly increasing, in the experiment's time unit.
+    values : ndarray [n]
+        In the experiment's concentration unit.
+    lines : ndarray [n] of int
+        Line of each point in its file (for messages).
+    """
+
+    species: str
+    times: np.ndarray
+    values: np.ndarray
+    lines: np.ndarray = field(repr=False)
+
+
+@dataclass(frozen=True)
+class Run:
+    """One run: starting conditions and the traces measured.
+
+    Attributes
+    ----------
+    name : str
+    traces : tuple of Trace
+    initial : dict of str to float
+        Known initial concentrations; species not listed start at zero.
+    fitted_initial : dict of str to Parameter
+        Initial concentrations fitted for this run, keyed by species.
+    temperature : float or None
+        In kelvin.
+    time_offset : Parameter or None
+        A fitted shift t0: the model is evaluated at t + t0 (mixing dead
+        time), when declared.
+    source : str
+        The data file.
+    path_length : float or None
+        Path length of the run's cell in cm, for signals (``None``: the
+        ``[signals]`` default).
+    start : float or None
+        Readings before this time were left out (data clock).
+    spectrum : Spectrum or None
+        The run's full spectra (time x wavelength), when given.
+    """
+
+    name: str
+    traces: tuple[Trace, ...]
+    initial: dict[str, float]
+    fitted_initial: dict[str, Parameter] = field(default_factory=dict)
+    temperature: float | None = None
+    time_offset: Parameter | None = None
+    source: str = ""
+    path_length: float | None = None
+    start: float | None = None
+    spectrum: object = None
+
+    @property
+    def n_points(self):
+        return sum(len(t.times) for t in self.traces) + (
+            self.spectrum.n_points if self.spectrum is not None else 0)
+
+    @property
+    def t_max(self):
+        ends = [float(t.times[-1]) for t in self.traces]
+        if self.spectrum is not None:
+            ends.append(float(self.spectrum.times[-1]))
+        return max(ends)
+
+    @property
+    def species(self):
+        return tuple(t.species for t in self.traces)
+
+    def parameters(self):
+        """The per-run parameters (fitted initial concentrations, time offset)."""
+        out = list(self.fitted_initial.values())
+        if self.time_offset is not None:
+            out.append(self.time_offset)
+        return out
+
+
+@dataclass(frozen=True)
+class Noise:
+    """Declared measurement noise of one species: σ = sqrt(a² + (r·|y|)²).
+
+    Attributes
+    ----------
+    absolute : float
+        a, in concentration units.
+    relative : float
+        r, a fraction (0.02 for 2 %).
+    """
+
+    absolute: float = 0.0
+    relative: float = 0.0
+
+    def sigma(self, values):
+        """Standard deviation of each measured value [n]."""
+        return np.sqrt(self.absolute ** 2 + (self.relative * np.abs(values)) ** 2)
+
+
+@dataclass(frozen=True)
+class Experiment:
+    """Runs of one reaction followed under different starting conditions.
+
+    Attributes
+    ----------
+    name : str
+    runs : tuple of Run
+    units : Units
+    noise : dict of str to Noise, or None
+        Declared noise per species; ``None`` when not declared, in which case
+        one unknown noise level shared by all points is estimated from the fit
+        (ordinary least squares).
+    source : str
+        The experiment file.
+    signals : SignalSpec or None
+        Beer–Lambert channels and spectra (see :mod:`kinfit.signals`).
+    """
+
+    name: str
+    runs: tuple[Run, ...]
+    units: Units = Units()
+    noise: dict[str, Noise] | None = None
+    source: str = "<experiment>"
+    description: str = ""
+    data_files: tuple[str, ...] = ()
+    signals: object = None
+
+    @property
+    def n_points(self):
+        return sum(r.n_points for r in self.runs)
+
+    @property
+    def species(self):
+        """Species measured in any run, in order of first appearance."""
+        seen = []
+        for run in self.runs:
+            for s in run.species:
+                if s not in seen:
+                    seen.append(s)
+        return tuple(seen)
+
+    def sigma(self, trace):
+        """Declared σ of each point of `trace` [n], or ``None`` if noise is unknown."""
+        if self.noise is None:
+            return None
+        return self.noise[trace.species].sigma(trace.values)
+
+    def run(self, name):
+        for r in self.runs:
+            if r.name == name:
+                return r
+        raise KinfitError(f"{self.source}: no run named {name!r}")
+
+
+def initial_name(species, run):
+    """Name of the fitted initial concentration of `species` in `run`: ``A0_r1``."""
+    return f"{species}0_{_identifier(run)}"
+
+
+def offset_name(run):
+    """Name of the fitted time offset of `run`: ``t0_r1``."""
+    return f"t0_{_identifier(run)}"
+
+
+def _identifier(text):
+    return re.sub(r"\W", "_", text, flags=re.ASCII)
+
+
+# ------------------------------------------------------------------- loading
+
+def load_experiment(path):
+    """Read an experiment file (TOML) and its data files.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+
+    Returns
+    -------
+    Experiment
+
+    Raises
+    ------
+    KinfitError
+        With the file, the line or field, and what was expected.
+    """
+    table, text = load_toml(path, "experiment file")
+    path = Path(path)
+    source = str(path)
+
+    unknown = set(table) - _EXPERIMENT_KEYS
+    if unknown:
+        key = sorted(unknown)[0]
+        raise KinfitError(f"{where(source, find_line(text, key))}: unknown key {key!r}; an "
+                          f"experiment file has {', '.join(sorted(_EXPERIMENT_KEYS))}")
+    units = parse_units(table.get("units", {}), source)
+    name = table.get("name", path.stem)
+    if not isinstance(name, str):
+        raise KinfitError(f"{where(source, find_line(text, 'name'), 'name')}: expected text")
+
+    raw_runs = table.get("runs")
+    if not isinstance(raw_runs, list) or not raw_runs or not all(
+            isinstance(r, dict) for r in raw_runs):
+        raise KinfitError(f"{source}: no runs; list each run as\n  [[runs]]\n  name = \"r1\"\n"
+                          f"  initial = {{ A = 0.1 }}")
+    default_temperature = table.get("temperature")
+    signals = parse_signals(table["signals"], text, source) if "signals" in table else None
+    specs = [_parse_run(i, raw, text, source, units, default_temperature)
+             for i, raw in enumerate(raw_runs)]
+    names = [s["name"] for s in specs]
+    for i, n in enumerate(names):
+        if names.index(n) != i:
+            raise KinfitError(f"{where(source, find_line(text, 'name', 'runs', i))}: run name "
+                              f"{n!r} is used twice")
+    ids = [_identifier(n) for n in names]
+    for i, n in enumerate(ids):
+        if ids.index(n) != i:
+            raise KinfitError(f"{where(source, find_line(text, 'name', 'runs', i))}: run names "
+                              f"{names[ids.index(n)]!r} and {names[i]!r} differ only in "
+                              f"punctuation; kinfit names per-run parameters after runs, so "
+                              f"make them differ in letters or digits")
+
+    traces, files = {}, []
+    data = table.get("data")
+    if data is not None:
+        if not isinstance(data, dict) or set(data) - {"file"} or "file" not in data:
+            raise KinfitError(f"{where(source, find_line(text, None, 'data'))}: expected "
+                              f"[data] with file = \"traces.csv\" (columns run,time,species,"
+                              f"value)")
+        data_path = resolve_file(data["file"], "data file", path.parent,
+                                 where(source, find_line(text, "file", "data"), "data.file"))
+        files.append(str(data_path))
+        traces.update(_read_long(data_path, data["file"], set(names),
+                                 {s["name"] for s in specs if s["file"]},
+                                 {s["name"]: s["start"] for s in specs}))
+    spectra = {}
+    channels = set(signals.channels) if signals is not None else set()
+    for spec in specs:
+        if spec["file"]:
+            run_path = resolve_file(spec["file"], "data file", path.parent, spec["where"])
+            files.append(str(run_path))
+            traces[spec["name"]] = _read_wide(run_path, spec["file"], units, channels,
+                                              spec["name"], spec["start"])
+        if spec["spectrum"]:
+            if signals is None or signals.spectra is None:
+                raise KinfitError(f"{spec['where']}: run {spec['name']!r} gives a spectrum "
+                                  f"but the experiment has no [signals.spectra] table saying "
+                                  f"which species absorb")
+            spec_path = resolve_file(spec["spectrum"], "spectrum file", path.parent,
+                                     spec["where"])
+            files.append(str(spec_path))
+            spectra[spec["name"]] = read_spectrum(spec_path, spec["spectrum"], units.time,
+                                                  spec["name"], spec["start"])
+    runs = []
+    for spec in specs:
+        run_traces = traces.get(spec["name"], [])
+        spectrum = spectra.get(spec["name"])
+        if not run_traces and spectrum is None:
+            raise KinfitError(f"{spec['where']}: run {spec['name']!r} has no data; give it "
+                              f"file = \"...\" (wide layout) or add its rows to the [data] file")
+        n_points = sum(len(t.times) for t in run_traces) + (
+            spectrum.n_points if spectrum is not None else 0)
+        if n_points < MIN_POINTS:
+            raise KinfitError(f"{spec['where']}: run {spec['name']!r} has {n_points} data "
+                              f"point(s); at least {MIN_POINTS} are needed")
+        runs.append(Run(name=spec["name"], traces=tuple(run_traces), initial=spec["initial"],
+                        fitted_initial=spec["fitted"], temperature=spec["temperature"],
+                        time_offset=spec["offset"], source=spec["source"] or (
+                            files[0] if files else ""),
+                        path_length=spec["path_length"], start=spec["start"],
+                        spectrum=spectrum))
+
+    experiment = Experiment(name=name, runs=tuple(runs), units=units, source=source,
+                            description=str(table.get("description", "")),
+                            data_files=tuple(files), signals=signals)
+    noise = _parse_noise(table.get("noise"), text, source, experiment)
+    return Experiment(**{**experiment.__dict__, "noise": noise})
+
+
+def _warn_negative(trace, shown):
+    """Warn (once per trace) about readings clearly below zero."""
+    scale = float(np.max(np.abs(trace.values))) if trace.values.size else 0.0
+    bad = np.flatnonzero(trace.values < -NEGATIVE_NOISE * scale)
+    if bad.size:
+        i = int(bad[0])
+        warnings.warn(f"{shown}, line {trace.lines[i]}: {trace.species} = {trace.values[i]:g} is "
+                      f"negative beyond plausible noise around zero ({bad.size} reading(s) in "
+                      f"this trace); check the sign, the baseline or the units",
+                      KinfitWarning, stacklevel=3)
+
+
+def _parse_run(index, raw, text, source, units, default_temperature):
+    loc = where(source, find_line(text, None, "runs", index), f"runs[{index + 1}]")
+    unknown = set(raw) - _RUN_KEYS
+    if unknown:
+        key = sorted(unknown)[0]
+        raise KinfitError(f"{where(source, find_line(text, key, 'runs', index))}: unknown key "
+                          f"{key!r} in a run; a run has {', '.join(sorted(_RUN_KEYS))}")
+    name = raw.get("name")
+    if not isinstance(name, str) or not name.strip():
+        raise KinfitError(f"{loc}: every run needs a name, like name = \"r1\"")
+    name = name.strip()
+    loc = where(source, find_line(text, "name", "runs", index), f"run {name!r}")
+
+    temperature = raw.get("temperature", default_temperature)
+    if temperature is not None:
+        if isinstance(temperature, bool) or not isinstance(temperature, (int, float)) \
+                or not math.isfinite(temperature):
+            raise KinfitError(f"{loc}: temperature must be a number in {units.temperature}")
+        temperature = to_kelvin(float(temperature), units.temperature)
+        if temperature <= 0:
+            raise KinfitError(f"{loc}: temperature is at or below absolute zero "
+                              f"({temperature:g} K)")
+
+    initial_raw = raw.get("initial", {})
+    if not isinstance(initial_raw, dict):
+        raise KinfitError(f"{loc}: initial must be a table like initial = {{ A = 0.1, B = 0.2 }}")
+    initial, fitted = {}, {}
+    for species, value in initial_raw.items():
+        field_loc = f"{loc} (initial.{species})"
+        if isinstance(value, dict):
+            p = _fitted(initial_name(species, name), value, field_loc, ROLE_INITIAL, lower=0.0)
+            if p.value < 0:
+                raise KinfitError(f"{field_loc}: a concentration cannot be negative")
+            if p.vary:
+                fitted[species] = p
+            else:
+                initial[species] = p.value
+        else:
+            if isinstance(value, bool) or not isinstance(value, (int, float)) \
+                    or not math.isfinite(value):
+                raise KinfitError(f"{field_loc}: expected a concentration in "
+                                  f"{units.concentration} or a table "
+                                  f"{{ value = ..., vary = true }}, got {value!r}")
+            if value < 0:
+                raise KinfitError(f"{field_loc}: a concentration cannot be negative "
+                                  f"(got {value:g})")
+            initial[species] = float(value)
+
+    offset = raw.get("time_offset")
+    if offset is not None:
+        if not isinstance(offset, dict):
+            offset = {"value": offset, "vary": False}
+        offset = _fitted(offset_name(name), offset, f"{loc} (time_offset)", ROLE_TIME_OFFSET)
+        if not offset.vary and offset.value == 0:
+            offset = None
+
+    file = raw.get("file")
+    if file is not None and not isinstance(file, str):
+        raise KinfitError(f"{loc} (file): expected a file name")
+    spectrum = raw.get("spectrum")
+    if spectrum is not None and not isinstance(spectrum, str):
+        raise KinfitError(f"{loc} (spectrum): expected a file name")
+    path_length = None
+    if "path_length" in raw:
+        path_length = parse_path_length(raw["path_length"], f"{loc} (path_length)")
+    start = raw.get("start")
+    if start is not None and (isinstance(start, bool) or not isinstance(start, (int, float))
+                              or not math.isfinite(start)):
+        raise KinfitError(f"{loc} (start): expected a time in {units.time}, got {start!r}")
+    return dict(name=name, where=loc, temperature=temperature, initial=initial, fitted=fitted,
+                offset=offset, file=file, source=file or spectrum, spectrum=spectrum,
+                path_length=path_length, start=None if start is None else float(start))
+
+
+def _fitted(pname, spec, loc, role, lower=-math.inf):
+    unknown = set(spec) - {"value", "vary", "min", "max"}
+    if unknown:
+        raise KinfitError(f"{loc}: unknown key {sorted(unknown)[0]!r}; expected value, vary, "
+                          f"min, max")
+    out = {}
+    for key, default in (("value", None), ("min", lower), ("max", math.inf)):
+        v = spec.get(key, default)
+        if v is None:
+            raise KinfitError(f"{loc}: missing value, e.g. {{ value = 0.1, vary = true }}")
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or math.isnan(v):
+            raise KinfitError(f"{loc}: {key} must be a number, got {v!r}")
+        out[key] = float(v)
+    vary = spec.get("vary", True)
+    if not isinstance(vary, bool):
+        raise KinfitError(f"{loc}: vary must be true or false")
+    if not math.isfinite(out["value"]):
+        raise KinfitError(f"{loc}: value must be finite")
+    if out["min"] > out["max"]:
+        raise KinfitError(f"{loc}: min ({out['min']:g}) is larger than max ({out['max']:g})")
+    if not out["min"] <= out["value"] <= out["max"]:
+        raise KinfitError(f"{loc}: the value {out['value']:g} is outside its bounds "
+                          f"[{out['min']:g}, {out['max']:g}]")
+    return Parameter(pname, out["value"], out["min"], out["max"], vary, role)
+
+
+def _parse_noise(raw, text, source, experiment):
+    if raw is None:
+        return None
+    loc = where(source, find_line(text, None, "noise"), "noise")
+    if not isinstance(raw, dict) or not raw:
+        raise KinfitError(f"{loc}: expected entries like default = {{ absolute = 0.001, "
+                          f"relative = 0.02 }}")
+    noise = {}
+    for key, spec in raw.items():
+        kloc = where(source, find_line(text, key, "noise"), f"noise.{key}")
+        if not isinstance(spec, dict) or not spec or set(spec) - {"absolute", "relative"}:
+            raise KinfitError(f"{kloc}: expected {{ absolute = ..., relative = ... }} (either "
+                              f"or both; absolute in {experiment.units.concentration}, "
+                              f"relative as a fraction)")
+        values = {}
+        for part in ("absolute", "relative"):
+            v = spec.get(part, 0.0)
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) \
+                    or v < 0:
+                raise KinfitError(f"{kloc}: {part} must be a non-negative number, got {v!r}")
+            values[part] = float(v)
+        if values["absolute"] == 0 and values["relative"] == 0:
+            raise KinfitError(f"{kloc}: the noise cannot be zero")
+        noise[key] = Noise(**values)
+    default = noise.pop("default", None)
+    out = {}
+    for run in experiment.runs:
+        for trace in run.traces:
+            spec = noise.get(trace.species, default)
+            if spec is None:
+                raise KinfitError(f"{loc}: no noise is declared for {trace.species!r}; add "
+                                  f"{trace.species} = {{ absolute = ... }} or a default entry")
+            sigma = spec.sigma(trace.values)
+            bad = np.flatnonzero(sigma <= 0)
+            if bad.size:
+                raise KinfitError(
+                    f"{run.source}, line {trace.lines[bad[0]]}: a reading of 0 with purely "
+                    f"relative noise gives σ = 0; add an absolute part to noise."
+                    f"{'default' if trace.species not in noise else trace.species}")
+            out[trace.species] = spec
+    return out
+
+
+# ------------------------------------------------------------ table reading
+
+def _read_csv(path, shown):
+    """Read a CSV as strings; returns (DataFrame of str, first data line number)."""
+    import pandas as pd
+
+    text = decode(Path(path).read_bytes(), shown)
+    if not text.strip():
+        raise KinfitError(f"{shown}: the data file is empty")
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("error", pd.errors.ParserWarning)
+            frame = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False,
+                                skip_blank_lines=False, skipinitialspace=True, index_col=False)
+    except pd.errors.ParserWarning:
+        raise KinfitError(f"{_ragged_line(text, shown)}: more values than the header has "
+                          f"columns") from None
+    except pd.errors.ParserError as exc:
+        msg = str(exc).strip()
+        m = re.search(r"line (\d+)", msg)
+        loc = f"{shown}, line {m.group(1)}" if m else shown
+        detail = re.sub(r"^Error tokenizing data\. C error: ", "", msg)
+        raise KinfitError(f"{loc}: not a CSV table: {detail}") from None
+    except pd.errors.EmptyDataError:
+        raise KinfitError(f"{shown}: the data file is empty") from None
+    header = [c.strip() for c in next(csv.reader(io.StringIO(text)), [])]
+    for i, name in enumerate(header):
+        if not name or header.index(name) != i:
+            raise KinfitError(f"{shown}, line 1: column {i + 1} has an empty or repeated "
+                              f"name {name!r}")
+    frame.columns = header
+    return frame
+
+
+def _ragged_line(text, shown):
+    """Location of the first row with more fields than the header."""
+    rows = csv.reader(io.StringIO(text))
+    width = len(next(rows, []))
+    for number, row in enumerate(rows, start=2):
+        if len(row) > width:
+            return f"{shown}, line {number}"
+    return str(shown)
+
+
+def _numbers(column, lines, shown, label, allow_blank=False):
+    """Convert a column of strings to floats, refusing text, NaN and infinity."""
+    import pandas as pd
+
+    stripped = column.fillna("").astype(str).str.strip()
+    values = pd.to_numeric(stripped.where(stripped != "", "nan"), errors="coerce").to_numpy(
+        dtype=float)
+    blank = (stripped == "").to_numpy()
+    bad = np.isnan(values) & ~blank
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        text = stripped.iloc[i]
+        if text.lower() in ("nan", "na", "n/a", "null", "none"):
+            raise KinfitError(f"{shown}, line {lines[i]}: {label} is {text!r}; expected a "
+                              f"number (leave the cell empty in the wide layout if nothing "
+                              f"was measured)")
+        raise KinfitError(f"{shown}, line {lines[i]}: {label} {text!r} is not a number"
+                          + (" (is the header repeated here?)" if text.lower() == label else ""))
+    inf = np.isinf(values)
+    if inf.any():
+        i = int(np.flatnonzero(inf)[0])
+        raise KinfitError(f"{shown}, line {lines[i]}: {label} {stripped.iloc[i]!r} is not a "
+                          f"finite number")
+    huge = np.abs(np.where(blank, 0.0, values)) > MAX_MAGNITUDE
+    if huge.any():
+        i = int(np.flatnonzero(huge)[0])
+        raise KinfitError(f"{shown}, line {lines[i]}: {label} {values[i]:g} is implausibly large "
+                          f"(beyond ±{MAX_MAGNITUDE:g}); is a unit or an exponent wrong?")
+    if blank.any() and not allow_blank:
+        i = int(np.flatnonzero(blank)[0])
+        raise KinfitError(f"{shown}, line {lines[i]}: {label} is missing")
+    return values, blank
+
+
+def _check_times(times, lines, shown, what):
+    check_times(times, lines, shown, what)
+
+
+def _fast_long(path):
+    """The long table read by pandas' numeric parser, or None when anything is unusual.
+
+    Clean files (no blank lines, no quotes, numbers everywhere they belong) are
+    read in one pass; anything else goes through the careful reader, which
+    finds the exact line of every problem.
+    """
+    import pandas as pd
+
+    try:
+        text = Path(path).read_bytes().decode("utf-8")
+    except UnicodeDecodeError:
+        return None
+    if "\r" in text or '"' in text or "\n\n" in text.strip("\n") or text.startswith("\ufeff"):
+        return None
+    header = [c.strip() for c in text.split("\n", 1)[0].split(",")]
+    body = text.strip("\n")
+    if body.count(",") != (body.count("\n") + 1) * (len(header) - 1):
+        return None                   # some row has more or fewer fields than the header
+    lower = {c.lower(): c for c in header}
+    if len(set(header)) != len(header) or any(c not in lower for c in _LONG_COLUMNS):
+        return None
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("error")
+            frame = pd.read_csv(io.StringIO(text), usecols=[lower[c] for c in _LONG_COLUMNS],
+                                dtype={lower["run"]: str, lower["species"]: str,
+                                       lower["time"]: float, lower["value"]: float},
+                                na_filter=False, skipinitialspace=True, index_col=False)
+    except (ValueError, pd.errors.ParserError, pd.errors.ParserWarning):
+        return None
+    times = frame[lower["time"]].to_numpy(dtype=float)
+    values = frame[lower["value"]].to_numpy(dtype=float)
+    if not (np.isfinite(times).all() and np.isfinite(values).all()) or not len(frame):
+        return None
+    if np.abs(times).max() > MAX_MAGNITUDE or np.abs(values).max() > MAX_MAGNITUDE:
+        return None
+    runs = frame[lower["run"]].str.strip().to_numpy()
+    species = frame[lower["species"]].str.strip().to_numpy()
+    if (runs == "").any() or (species == "").any():
+        return None
+    return runs, times, species, values, np.arange(2, len(frame) + 2)
+
+
+def _read_long(path, shown, listed, own_file, starts=None):
+    fast = _fast_long(path)
+    if fast is not None:
+        runs, times, species, values, lines = fast
+    else:
+        runs, times, species, values, lines = _careful_long(path, shown)
+    out = {}
+    for run in dict.fromkeys(runs):
+        rows = np.flatnonzero(runs == run)
+        if run not in listed:
+            raise KinfitError(f"{shown}, line {lines[rows[0]]}: run {run!r} is not listed in "
+                              f"the experiment file; add a [[runs]] entry for it or remove "
+                              f"its rows")
+        if run in own_file:
+            raise KinfitError(f"{shown}, line {lines[rows[0]]}: run {run!r} has its own data "
+                              f"file too; give each run's data once")
+        traces = []
+        start = (starts or {}).get(run)
+        if start is not None:
+            rows = rows[times[rows] >= start]
+        for sp in dict.fromkeys(species[rows]):
+            sel = rows[species[rows] == sp]
+            _check_times(times[sel], lines[sel], shown, f"run {run!r}, {sp}")
+            traces.append(Trace(sp, times[sel], values[sel], lines[sel]))
+            _warn_negative(traces[-1], shown)
+        out[run] = traces
+    return out
+
+
+def _careful_long(path, shown):
+    """Read the long table cell by cell, naming the line of any problem."""
+    frame = _read_csv(path, shown)
+    lower = {c.lower(): c for c in frame.columns}
+    missing = [c for c in _LONG_COLUMNS if c not in lower]
+    if missing:
+        raise KinfitError(f"{shown}, line 1: missing column(s) {', '.join(missing)}; the long "
+                          f"layout needs run,time,species,value (found: "
+                          f"{', '.join(frame.columns)})")
+    frame = frame[[lower[c] for c in _LONG_COLUMNS]]
+    frame.columns = list(_LONG_COLUMNS)
+    lines = np.arange(2, len(frame) + 2)
+    blank_row = (frame.fillna("").apply(lambda c: c.astype(str).str.strip()) == "").all(axis=1)
+    frame, lines = frame[~blank_row.to_numpy()], lines[~blank_row.to_numpy()]
+    if not len(frame):
+        raise KinfitError(f"{shown}: the data file has a header but no data rows")
+    runs = frame["run"].astype(str).str.strip().to_numpy()
+    species = frame["species"].astype(str).str.strip().to_numpy()
+    times, _ = _numbers(frame["time"], lines, shown, "time")
+    values, _ = _numbers(frame["value"], lines, shown, "value")
+    for label, col in (("run", runs), ("species", species)):
+        empty = np.flatnonzero(col == "")
+        if empty.size:
+            raise KinfitError(f"{shown}, line {lines[empty[0]]}: the {label} is missing")
+
+    return runs, times, species, values, lines
+
+
+def _read_wide(path, shown, units, channels=(), run=None, start=None):
+    """A run's wide table (see :mod:`kinfit.instrument`): a time column and one
+    column per species or signal channel; an empty cell means not measured."""
+    from kinfit.core.units import check_unit, conversion_factor
+
+    table = read_table(path, shown)
+    rows, times = table_times(table, units.time, run, start)
+    t_col, run_col = table.index("time"), table.index("run")
+    columns = [c for c in range(len(table.names)) if c not in (t_col, run_col)]
+    if not columns:
+        raise KinfitError(f"{shown}, line {table.header_line}: only a time column; add one "
+                          f"column per measured species")
+    traces = []
+    lines = table.lines[rows]
+    for c in columns:
+        name, unit = table.names[c], table.units[c]
+        values, blank = table.numbers(c, rows=rows, allow_blank=True)
+        if unit and name not in channels:
+            loc = f"{shown}, line {table.header_line} (column {name!r})"
+            check_unit(unit, "concentration", loc)
+            try:
+                values = values * conversion_factor(unit, units.concentration)
+            except Exception:   # pint: molar and mass concentrations do not convert
+                raise KinfitError(f"{loc}: {unit} cannot be converted to the experiment's "
+                                  f"{units.concentration}") from None
+        keep = ~blank
+        if keep.any():
+            traces.append(Trace(name, times[keep], values[keep], lines[keep]))
+            _warn_negative(traces[-1], shown)
+    return traces
