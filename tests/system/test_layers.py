@@ -1,0 +1,65 @@
+"""The layer contract: a module imports only its own layer or lower ones.
+
+The contract lives in pyproject.toml ([tool.importlinter]) and is checked by
+import-linter, which reads every import in the source, those inside functions
+included. The second test plants an upward import in a copy of the package to
+show that the check can fail.
+"""
+
+from __future__ import annotations
+
+import shutil
+import subprocess
+import sys
+import textwrap
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[2]
+LAYERS = ["core", "inputs", "numerics", "estimation", "analysis", "figures", "output", "app"]
+
+
+def _lint(folder):
+    code = ("import sys; from importlinter.cli import lint_imports; "
+            "sys.exit(lint_imports(config_filename='pyproject.toml', no_cache=True, no_logo=True))")
+    return subprocess.run([sys.executable, "-c", code], cwd=folder, capture_output=True, text=True,
+                          env={"PYTHONPATH": str(folder), "PATH": ""}, timeout=300)
+
+
+def test_every_module_sits_in_a_layer():
+    # the package root holds only __init__.py; every other module is in one layer folder
+    loose = [p.name for p in (ROOT / "kinfit").glob("*.py") if p.name != "__init__.py"]
+    assert loose == []
+    folders = sorted(p.name for p in (ROOT / "kinfit").iterdir()
+                     if p.is_dir() and not p.name.startswith("__"))
+    assert folders == sorted(LAYERS)
+
+
+def test_layer_contract_is_kept():
+    run = _lint(ROOT)
+    assert run.returncode == 0, run.stdout + run.stderr
+    assert "2 kept, 0 broken" in run.stdout
+
+
+def test_layer_contract_fails_on_an_upward_import(tmp_path):
+    shutil.copytree(ROOT / "kinfit", tmp_path / "kinfit",
+                    ignore=shutil.ignore_patterns("__pycache__", "*.pyc"))
+    shutil.copy(ROOT / "pyproject.toml", tmp_path / "pyproject.toml")
+    planted = tmp_path / "kinfit" / "core" / "errors.py"
+    planted.write_text(planted.read_text() + textwrap.dedent("""
+
+        def _planted():
+            from kinfit.output import report   # upward, and inside a function
+            return report
+        """))
+    run = _lint(tmp_path)
+    assert run.returncode != 0
+    assert "kinfit.core.errors -> kinfit.output.report" in run.stdout
+
+
+def test_no_module_is_longer_than_700_lines():
+    # house rule: one compiled loop may reach 1,000 lines, nothing else passes 700
+    lengths = {p.relative_to(ROOT).as_posix(): len(p.read_text().splitlines())
+               for p in (ROOT / "kinfit").rglob("*.py")}
+    long = {name: n for name, n in lengths.items() if n > 700}
+    assert all(n <= 1000 for n in long.values()), long
+    assert len(long) <= 1, long
