@@ -34,11 +34,11 @@ import numpy as np
 from kinfit.analysis.activation import RateAt, interval_quantile
 from kinfit.inputs.experiment import Experiment, Run, Trace, initial_name
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.mechanism import ROLE_RATE_CONSTANT
 from kinfit.numerics.problem import build_problem
 from kinfit.inputs.sources import decode
 from kinfit.inputs.temperature import ln_rate_form, reference_temperature
 from kinfit.core.units import Units
+from kinfit.inputs.parameters import Role
 
 __all__ = ["FittedRange", "fitted_range", "extrapolation_flags", "PredictionBasis",
            "basis_from_fit", "basis_to_dict", "load_basis", "Prediction", "predict",
@@ -389,7 +389,7 @@ def _draws(basis, problem, samples, names, n_draws, seed):
         return np.empty((0, base.size)), "none"
     free = [index[n] for n in basis.free_names]
     roles = [problem.parameters[i].role for i in free]
-    log = np.array([r == ROLE_RATE_CONSTANT for r in roles])
+    log = np.array([r == Role.RATE_CONSTANT for r in roles])
     center = np.where(log, np.log(np.maximum(base[free], 1e-300)), base[free])
     slope = np.where(log, 1.0 / np.maximum(base[free], 1e-300), 1.0)
     cov = basis.covariance * np.outer(slope, slope)

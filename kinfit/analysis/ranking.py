@@ -65,7 +65,8 @@ from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import DEFAULT_STARTS, fit
 from kinfit.analysis.initial_rates import (DEFAULT_MAX_CONVERSION, AGREEMENT_Z, check_orders, initial_rates,
                             rate_constant_at)
-from kinfit.inputs.mechanism import ROLE_ORDER, ROLE_RATE_CONSTANT, with_fixed, with_start
+from kinfit.inputs.mechanism import with_fixed, with_start
+from kinfit.inputs.parameters import Role
 
 __all__ = ["Candidate", "Ranked", "NestedTest", "ModelAverage", "CrossCheck", "Comparison",
            "compare", "rank", "order_lattice", "parse_order_grid", "fit_candidates", "nests",
@@ -471,7 +472,7 @@ def _structure(mech):
     """
     names = mech.parameter_names
     params = mech.parameters
-    free = [i for i, n in enumerate(names) if params[n].vary and params[n].role == ROLE_ORDER]
+    free = [i for i, n in enumerate(names) if params[n].vary and params[n].role == Role.ORDER]
     base = np.array([params[n].value for n in names])
     base[free] = 0.0            # e0: the orders with every free order parameter at 0
     _, e0 = mech.rate_arrays(base)
@@ -493,7 +494,7 @@ def _structure(mech):
         "params": params,
         "temperature": getattr(mech, "temperature", None),
         "others": {n: p for n, p in params.items()
-                   if p.role not in (ROLE_ORDER, ROLE_RATE_CONSTANT)},
+                   if p.role not in (Role.ORDER, Role.RATE_CONSTANT)},
     }
 
 
@@ -655,7 +656,7 @@ def model_averages(rows):
     names = []
     for row in rows:
         for n, role in row.fit.roles.items():
-            if role in (ROLE_RATE_CONSTANT, ROLE_ORDER) and n not in names:
+            if role in (Role.RATE_CONSTANT, Role.ORDER) and n not in names:
                 names.append(n)
     out = []
     for name in names:
@@ -891,7 +892,7 @@ def _template_for(mechanisms, grid):
     """Index of the first mechanism that has every grid name as an order parameter."""
     for i, mech in enumerate(mechanisms):
         params = mech.parameters
-        if all(n in params and params[n].role == ROLE_ORDER for n in grid):
+        if all(n in params and params[n].role == Role.ORDER for n in grid):
             return i
     orders = sorted({n for m in mechanisms for n in m.orders})
     raise KinfitError(f"--orders {', '.join(grid)}: no model given has order parameter(s) "
@@ -920,7 +921,7 @@ def order_lattice(template, grid, name=None, starts=LATTICE_STARTS):
     name = name or template.name
     for pname in grid:
         p = template.parameters.get(pname)
-        if p is None or p.role != ROLE_ORDER:
+        if p is None or p.role != Role.ORDER:
             raise KinfitError(f"{template.source}: {pname!r} is not an order parameter of "
                               f"'{template.name}'; its orders are "
                               f"{', '.join(template.orders) or 'none'}")

@@ -29,9 +29,9 @@ from kinfit.analysis.activation import (UNITS, Estimate, find_estimate, interval
                          si_factor)
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
-from kinfit.inputs.mechanism import ROLE_ORDER
 from kinfit.inputs.temperature import (ENERGY_UNIT, H, K_B, KILO, R, STANDARD_TEMPERATURE,
                           rate_constant, reference_temperature)
+from kinfit.inputs.parameters import Role
 
 __all__ = ["LineFit", "weighted_line", "TemperatureGroup", "TwoStageLaw", "TwoStage",
            "two_stage", "order_differences", "ORDERS"]
@@ -268,9 +268,9 @@ def _stage_mechanism(mech, result, orders):
     for name, p in mech.parameters.items():
         if name in mech.temperature.energy_roles:
             p = replace(p, vary=False)
-        elif orders == "global" and p.role == ROLE_ORDER and result is not None:
+        elif orders == "global" and p.role == Role.ORDER and result is not None:
             p = replace(p, value=result.values[name], vary=False)
-        elif result is not None and name in result.values and p.role == ROLE_ORDER:
+        elif result is not None and name in result.values and p.role == Role.ORDER:
             p = replace(p, value=result.values[name])
         params[name] = p
     return replace(mech, parameters=params, temperature=None)

@@ -32,13 +32,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from kinfit.inputs.experiment import ROLE_INITIAL, ROLE_TIME_OFFSET
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.mechanism import ROLE_ORDER, ROLE_RATE_CONSTANT, format_rate_law
+from kinfit.inputs.mechanism import format_rate_law
 from kinfit.estimation.residual_checks import check_residuals
 from kinfit.numerics.problem import FAILED_RESIDUAL, build_problem, information_criteria
 from kinfit.numerics.simulate import Trajectory
-from kinfit.inputs.temperature import ENERGY_UNIT, ROLE_ACTIVATION_ENERGY, ROLE_ACTIVATION_ENTHALPY
+from kinfit.inputs.temperature import ENERGY_UNIT
+from kinfit.inputs.parameters import Role
 
 __all__ = ["FitResult", "fit", "DEFAULT_STARTS"]
 
@@ -245,23 +245,23 @@ class _Layout:
         self.base = np.array([p.value for p in params])
         self.free = [i for i, p in enumerate(params) if p.vary]
         self.names = tuple(params[i].name for i in self.free)
-        self.log = np.array([params[i].role == ROLE_RATE_CONSTANT for i in self.free], bool)
+        self.log = np.array([params[i].role == Role.RATE_CONSTANT for i in self.free], bool)
         lo, hi, u0, box_lo, box_hi, scale = [], [], [], [], [], []
         t_max = max(run.t_max for run in problem.experiment.runs)
         for i in self.free:
             p = params[i]
-            if p.role == ROLE_RATE_CONSTANT:
+            if p.role == Role.RATE_CONSTANT:
                 a = math.log10(p.min) if p.min > 0 else -math.inf
                 b = math.log10(p.max) if math.isfinite(p.max) else math.inf
                 u = math.log10(p.value)
                 half, s = 2.0, 1.0
             else:
                 a, b, u = p.min, p.max, p.value
-                if p.role == ROLE_ORDER:
+                if p.role == Role.ORDER:
                     half, s = 1.5, 1.0
-                elif p.role == ROLE_INITIAL:
+                elif p.role == Role.INITIAL:
                     half, s = 0.5 * abs(u) or 1.0, abs(u) or 1.0
-                elif p.role == ROLE_TIME_OFFSET:
+                elif p.role == Role.TIME_OFFSET:
                     half, s = 0.05 * t_max, 0.01 * t_max
                 else:
                     half, s = max(abs(u), 1.0), max(abs(u), 1.0)
@@ -594,13 +594,13 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
     units, roles = {}, {}
     for p in problem.parameters:
         roles[p.name] = p.role
-        if p.role == ROLE_RATE_CONSTANT:
+        if p.role == Role.RATE_CONSTANT:
             units[p.name] = exp.units.rate_constant(overall.get(p.name))
-        elif p.role == ROLE_INITIAL:
+        elif p.role == Role.INITIAL:
             units[p.name] = exp.units.concentration
-        elif p.role == ROLE_TIME_OFFSET:
+        elif p.role == Role.TIME_OFFSET:
             units[p.name] = exp.units.time
-        elif p.role in (ROLE_ACTIVATION_ENERGY, ROLE_ACTIVATION_ENTHALPY):
+        elif p.role in (Role.ACTIVATION_ENERGY, Role.ACTIVATION_ENTHALPY):
             units[p.name] = ENERGY_UNIT
         else:
             units[p.name] = ""

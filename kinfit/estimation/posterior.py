@@ -53,7 +53,8 @@ from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import DEFAULT_STARTS, fit
 from kinfit.numerics.problem import FAILED_RESIDUAL, build_problem
 from kinfit.estimation.profile import profile_intervals
-from kinfit.estimation.space import ROLE_NOISE, parameter_space
+from kinfit.estimation.space import parameter_space
+from kinfit.inputs.parameters import Role
 
 __all__ = ["Posterior", "Settings", "ChainState", "RunBands", "sample", "run_ensemble",
            "load_chain", "write_chain", "summarise", "compare_intervals",
@@ -822,7 +823,7 @@ def _analyse(space, fit_result, target, state, stopped, settings, rng, profile, 
     units = dict(fit_result.units)
     conc_unit = fit_result.experiment.units.concentration
     for name, role in zip(space.names, space.roles):
-        if role == ROLE_NOISE:
+        if role == Role.NOISE:
             units[name] = conc_unit
     warnings = list(diag.reasons)
     if stopped == "time budget":

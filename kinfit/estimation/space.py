@@ -43,13 +43,12 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.mechanism import ROLE_RATE_CONSTANT
 from kinfit.inputs.priors import Prior
+from kinfit.inputs.parameters import Role
 
-__all__ = ["ParameterSpace", "parameter_space", "NOISE_MODES", "ROLE_NOISE"]
+__all__ = ["ParameterSpace", "parameter_space", "NOISE_MODES", "Role.NOISE"]
 
 NOISE_MODES = ("auto", "declared", "per-species", "shared")
-ROLE_NOISE = "noise level"
 _LN10 = math.log(10.0)
 _LOG_2PI = math.log(2.0 * math.pi)
 # support of the default noise prior, relative to the largest measured magnitude
@@ -213,7 +212,7 @@ def parameter_space(problem, noise="auto", with_noise=True):
     names, labels, roles, log10, lower, upper, priors = [], [], [], [], [], [], []
     for i in free:
         p = params[i]
-        is_log = p.role == ROLE_RATE_CONSTANT
+        is_log = p.role == Role.RATE_CONSTANT
         default = Prior("log-uniform") if is_log else Prior("uniform")
         prior = (p.prior or default).within(p.min, p.max)
         names.append(p.name)
@@ -248,7 +247,7 @@ def parameter_space(problem, noise="auto", with_noise=True):
             lo, hi = _SIGMA_RANGE[0] * scale, _SIGMA_RANGE[1] * scale
             names.append(name)
             labels.append(f"log10_{name}")
-            roles.append(ROLE_NOISE)
+            roles.append(Role.NOISE)
             log10.append(True)
             lower.append(math.log10(lo))
             upper.append(math.log10(hi))

@@ -34,16 +34,14 @@ import numpy as np
 
 from kinfit.core.errors import KinfitError, KinfitWarning, where
 from kinfit.inputs.instrument import MAX_MAGNITUDE, check_times, read_table
-from kinfit.inputs.mechanism import Parameter
 from kinfit.inputs.signals import parse_path_length, parse_signals, read_spectrum, table_times
 from kinfit.inputs.sources import decode, find_line, load_toml, resolve_file
 from kinfit.core.units import Units, parse_units, to_kelvin
+from kinfit.inputs.parameters import Parameter, Role
 
 __all__ = ["Trace", "Run", "Noise", "Experiment", "load_experiment", "initial_name",
-           "offset_name", "ROLE_INITIAL", "ROLE_TIME_OFFSET", "MIN_POINTS"]
+           "offset_name", "Role.INITIAL", "Role.TIME_OFFSET", "MIN_POINTS"]
 
-ROLE_INITIAL = "initial concentration"
-ROLE_TIME_OFFSET = "time offset"
 MIN_POINTS = 3
 NEGATIVE_NOISE = 0.05   # a reading below -5 % of its trace's largest is not noise around 0
 
@@ -380,7 +378,7 @@ def _parse_run(index, raw, text, source, units, default_temperature):
     for species, value in initial_raw.items():
         field_loc = f"{loc} (initial.{species})"
         if isinstance(value, dict):
-            p = _fitted(initial_name(species, name), value, field_loc, ROLE_INITIAL, lower=0.0)
+            p = _fitted(initial_name(species, name), value, field_loc, Role.INITIAL, lower=0.0)
             if p.value < 0:
                 raise KinfitError(f"{field_loc}: a concentration cannot be negative")
             if p.vary:
@@ -402,7 +400,7 @@ def _parse_run(index, raw, text, source, units, default_temperature):
     if offset is not None:
         if not isinstance(offset, dict):
             offset = {"value": offset, "vary": False}
-        offset = _fitted(offset_name(name), offset, f"{loc} (time_offset)", ROLE_TIME_OFFSET)
+        offset = _fitted(offset_name(name), offset, f"{loc} (time_offset)", Role.TIME_OFFSET)
         if not offset.vary and offset.value == 0:
             offset = None
 

@@ -36,45 +36,15 @@ from kinfit.inputs.expressions import (PARAMETER_NAME, SPECIES_NAME, ParseError,
 from kinfit.inputs.priors import parse_prior
 from kinfit.inputs.sources import find_line, load_toml
 from kinfit.inputs.temperature import check_roles, parse_temperature
+from kinfit.inputs.parameters import Parameter, Role
 
 __all__ = ["Parameter", "Step", "Mechanism", "load_mechanism", "mechanism_from_text",
            "rates", "rhs", "jacobian", "format_rate_law", "with_fixed", "with_start"]
 
-ROLE_RATE_CONSTANT = "rate constant"
-ROLE_ORDER = "order"
 
 _MODEL_KEYS = {"name", "description", "held_constant", "steps", "parameters", "temperature"}
 _STEP_KEYS = {"reaction", "rate", "reverse_rate", "label"}
 _PARAMETER_KEYS = {"value", "min", "max", "vary", "prior"}
-
-
-@dataclass(frozen=True)
-class Parameter:
-    """A model parameter with its starting value, bounds and role.
-
-    Attributes
-    ----------
-    name : str
-    value : float
-        Starting value for a fit (or the fixed value when ``vary`` is false).
-    min, max : float
-        Bounds (``-inf``/``inf`` when open).
-    vary : bool
-    role : str
-        ``"rate constant"`` (a prefactor of a rate law; fitted on a log scale,
-        never negative) or ``"order"`` (an exponent), or ``"unused"``.
-    prior : Prior or None
-        A prior from the model file for posterior sampling; ``None`` for
-        kinfit's default (see :mod:`kinfit.space`).
-    """
-
-    name: str
-    value: float
-    min: float = -math.inf
-    max: float = math.inf
-    vary: bool = True
-    role: str = ROLE_RATE_CONSTANT
-    prior: object = None
 
 
 @dataclass(frozen=True)
@@ -157,11 +127,11 @@ class Mechanism:
 
     @property
     def rate_constants(self):
-        return tuple(n for n, p in self.parameters.items() if p.role == ROLE_RATE_CONSTANT)
+        return tuple(n for n, p in self.parameters.items() if p.role == Role.RATE_CONSTANT)
 
     @property
     def orders(self):
-        return tuple(n for n, p in self.parameters.items() if p.role == ROLE_ORDER)
+        return tuple(n for n, p in self.parameters.items() if p.role == Role.ORDER)
 
     def values(self, overrides=None):
         """Parameter values as a dict: starting values updated by `overrides`."""
@@ -268,7 +238,7 @@ def with_start(mechanism, values):
         if not p.vary or not math.isfinite(value):
             continue
         value = min(max(float(value), p.min), p.max)
-        if p.role == ROLE_RATE_CONSTANT and value <= 0:
+        if p.role == Role.RATE_CONSTANT and value <= 0:
             value = p.value
         params[pname] = replace(p, value=value)
     return replace(mechanism, parameters=params)
@@ -551,8 +521,8 @@ def _parse_parameters(raw, steps, text, source, temperature=None):
         for key, law in (("rate", step.forward), ("reverse_rate", step.reverse)):
             if law is None:
                 continue
-            uses = [(law.constant, ROLE_RATE_CONSTANT)] + [
-                (p, ROLE_ORDER) for p in law.order_parameters]
+            uses = [(law.constant, Role.RATE_CONSTANT)] + [
+                (p, Role.ORDER) for p in law.order_parameters]
             for pname, role in uses:
                 if pname in roles and roles[pname] != role:
                     raise KinfitError(
@@ -609,7 +579,7 @@ def _parse_parameter(name, spec, role, loc):
     if "value" not in spec:
         raise KinfitError(f"{loc}: missing value, e.g. {name} = {{ value = 1.0 }}")
     value = _number(spec["value"], loc, "value")
-    default_min = 0.0 if role == ROLE_RATE_CONSTANT else -math.inf
+    default_min = 0.0 if role == Role.RATE_CONSTANT else -math.inf
     lo = _number(spec.get("min", default_min), loc, "min")
     hi = _number(spec.get("max", math.inf), loc, "max")
     vary = spec.get("vary", True)
@@ -619,7 +589,7 @@ def _parse_parameter(name, spec, role, loc):
         raise KinfitError(f"{loc}: value must be a finite number, got {value!r}")
     if lo > hi:
         raise KinfitError(f"{loc}: min ({lo:g}) is larger than max ({hi:g})")
-    if role == ROLE_RATE_CONSTANT:
+    if role == Role.RATE_CONSTANT:
         if lo < 0:
             raise KinfitError(f"{loc}: {name} is a rate constant and cannot be negative; "
                               f"use min = 0 or a positive min")
@@ -633,7 +603,7 @@ def _parse_parameter(name, spec, role, loc):
     if value < lo or value > hi:
         raise KinfitError(f"{loc}: the value {value:g} is outside its bounds "
                           f"[{lo:g}, {hi:g}]")
-    if role == ROLE_ORDER and abs(value) > 20:
+    if role == Role.ORDER and abs(value) > 20:
         raise KinfitError(f"{loc}: the order {name} = {value:g} is beyond ±20; is it a "
                           f"typing error?")
     prior = parse_prior(spec["prior"], loc) if "prior" in spec else None

@@ -49,9 +49,10 @@ from scipy import constants as _constants
 from kinfit.core.errors import KinfitError, where
 from kinfit.inputs.sources import find_line
 from kinfit.core.units import to_kelvin
+from kinfit.inputs.parameters import Role
 
 __all__ = ["R", "K_B", "H", "KILO", "STANDARD_TEMPERATURE", "ARRHENIUS", "EYRING",
-           "ROLE_ACTIVATION_ENERGY", "ROLE_ACTIVATION_ENTHALPY", "ENERGY_UNIT", "RateLaw",
+           "Role.ACTIVATION_ENERGY", "Role.ACTIVATION_ENTHALPY", "ENERGY_UNIT", "RateLaw",
            "TemperatureSpec", "parse_temperature", "check_roles", "reference_temperature",
            "TemperatureLayout", "join_temperatures", "rate_constant", "Linear",
            "linear_forms", "ln_rate_form"]
@@ -65,10 +66,8 @@ STANDARD_TEMPERATURE = _constants.zero_Celsius + 25.0
 
 ARRHENIUS = "arrhenius"
 EYRING = "eyring"
-ROLE_ACTIVATION_ENERGY = "activation energy"
-ROLE_ACTIVATION_ENTHALPY = "activation enthalpy"
 ENERGY_UNIT = "kJ/mol"
-_ROLE_OF_LAW = {ARRHENIUS: ROLE_ACTIVATION_ENERGY, EYRING: ROLE_ACTIVATION_ENTHALPY}
+_ROLE_OF_LAW = {ARRHENIUS: Role.ACTIVATION_ENERGY, EYRING: Role.ACTIVATION_ENTHALPY}
 _KEYS = {ARRHENIUS, EYRING, "kappa", "reference"}
 _NAME = re.compile(r"[A-Za-z][A-Za-z0-9_]*\Z")
 _QUANTITY = re.compile(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*\Z")
