@@ -524,3 +524,24 @@ def test_sample_on_a_temperature_model_gives_posterior_activation_intervals(tmp_
         lo, hi = estimates[name]["posterior_interval"]
         assert lo < estimates[name]["value"] < hi
     assert "temperature" in (out / "report.html").read_text(encoding="utf-8").lower()
+
+
+def test_command_line_and_library_share_their_defaults():
+    # each option default of the CLI is the library's own default (core/defaults.py)
+    import inspect
+
+    import kinfit
+    from kinfit.app import cli
+
+    def option(command, name):
+        return inspect.signature(command).parameters[name].default.default
+
+    def library(function, name):
+        return inspect.signature(function).parameters[name].default
+
+    assert option(cli.fit_command, "starts") == library(kinfit.fit, "starts")
+    assert option(cli.sample_command, "walkers") == library(kinfit.sample, "walkers")
+    assert option(cli.sample_command, "steps") == library(kinfit.sample, "steps")
+    assert option(cli.sample_command, "moves") == library(kinfit.sample, "moves")
+    assert option(cli.rank_command, "lattice_starts") == library(kinfit.rank, "lattice_starts")
+    assert option(cli.rank_command, "criterion") == library(kinfit.rank, "criterion")

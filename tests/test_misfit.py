@@ -41,6 +41,7 @@ def test_checks_of_a_fit(small):
     from kinfit.estimation.residual_checks import check_residuals
 
     result = fit(load_experiment(small["experiment"]), load_mechanism(small["model"]), starts=1)
-    checks = check_residuals(result)
+    checks = check_residuals(result.experiment, result.residuals)
+    assert tuple(checks) == result.residual_checks
     assert [(c.run, c.species, c.n) for c in checks] == [("r1", "A", 4)]
     assert checks[0].verdict == "too few residuals of each sign to judge"

@@ -63,14 +63,14 @@ def test_temperature_summary_and_files(tmp_path, arrhenius_study):
 
     result = arrhenius_study["result"]
     acts = activation_parameters(result)
-    text = format_activation(acts, arrhenius_study["two_stage"], result)
+    text = format_activation(acts, arrhenius_study["two_stage"])
     for needed in ("Ea (fitted)", "ΔH‡", "ΔS‡", "ΔG‡(298.15 K)", "T_ref = 302.41 K (29.3 °C), where k = k_ref",
                    "Two-stage analysis", "global fit 95 %", "Extrapolation beyond the measured "
                    "range is unsafe", "calorimetry", "process-safety review", "local codes",
                    "licensed professional practice", "thermal runaway"):
         assert needed in " ".join(text.split()), needed
     files, summary = temperature_outputs(acts, arrhenius_study["two_stage"],
-                                         basis_from_fit(result), result)
+                                         basis_from_fit(result))
     assert set(files) == {"temperature.json", "arrhenius.png", "arrhenius.svg", "eyring.png",
                           "eyring.svg"}
     data = json.loads(files["temperature.json"])

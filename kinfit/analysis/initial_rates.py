@@ -44,14 +44,14 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from kinfit.core.defaults import DEFAULT_MAX_CONVERSION
 from kinfit.core.errors import KinfitError
 from kinfit.inputs.expressions import ParseError, parse_reaction
 
 __all__ = ["TraceSlope", "InitialRate", "OrderRegression", "OrderCheck", "InitialRates",
            "initial_slope", "run_initial_rate", "regress_orders", "initial_rates",
-           "check_orders", "rate_constant_at", "polynomial_fit", "DEFAULT_MAX_CONVERSION", "DEFAULT_DEGREE", "AGREEMENT_Z"]
+           "check_orders", "rate_constant_at", "polynomial_fit", "DEFAULT_DEGREE", "AGREEMENT_Z"]
 
-DEFAULT_MAX_CONVERSION = 0.2
 DEFAULT_DEGREE = 2
 # Two combined standard errors: about the 95 % level for a normal estimate
 # (common practice).

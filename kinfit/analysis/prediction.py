@@ -31,6 +31,7 @@ from pathlib import Path
 
 import numpy as np
 
+from kinfit.core.defaults import DEFAULT_DRAWS
 from kinfit.analysis.activation import RateAt, interval_quantile
 from kinfit.inputs.experiment import Experiment, Run, Trace, initial_name
 from kinfit.core.errors import KinfitError
@@ -41,10 +42,8 @@ from kinfit.core.units import Units
 from kinfit.inputs.parameters import Role
 
 __all__ = ["FittedRange", "fitted_range", "extrapolation_flags", "PredictionBasis",
-           "basis_from_fit", "basis_to_dict", "load_basis", "Prediction", "predict",
-           "DEFAULT_DRAWS"]
+           "basis_from_fit", "basis_to_dict", "load_basis", "Prediction", "predict"]
 
-DEFAULT_DRAWS = 200
 _TOL = 1e-9
 
 

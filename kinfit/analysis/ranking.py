@@ -61,10 +61,11 @@ from itertools import product
 
 import numpy as np
 
+from kinfit.core.defaults import (DEFAULT_CRITERION, DEFAULT_MAX_CONVERSION, DEFAULT_STARTS,
+                                  LATTICE_STARTS)
 from kinfit.core.errors import KinfitError
-from kinfit.estimation.least_squares import DEFAULT_STARTS, fit
-from kinfit.analysis.initial_rates import (DEFAULT_MAX_CONVERSION, AGREEMENT_Z, check_orders, initial_rates,
-                            rate_constant_at)
+from kinfit.estimation.least_squares import fit
+from kinfit.analysis.initial_rates import (AGREEMENT_Z, check_orders, initial_rates, rate_constant_at)
 from kinfit.inputs.mechanism import with_fixed, with_start
 from kinfit.inputs.parameters import Role
 
@@ -72,15 +73,13 @@ __all__ = ["Candidate", "Ranked", "NestedTest", "ModelAverage", "CrossCheck", "C
            "compare", "rank", "order_lattice", "parse_order_grid", "fit_candidates", "nests",
            "criterion_weights", "f_test", "likelihood_ratio_test", "evidence_aicc",
            "evidence_bic", "model_averages", "fitted_orders", "CRITERIA",
-           "DEFAULT_CRITERION", "LATTICE_STARTS", "MAX_CANDIDATES"]
+           "MAX_CANDIDATES"]
 
 CRITERIA = ("aicc", "aic", "bic")
-DEFAULT_CRITERION = "aicc"
 # Fixed-order candidates have only their rate constants (and per-run
 # nuisances) free and start from the template's best fit, rescaled (see
 # _warm_start); one start is enough there (checked against four in
 # tests/benchmarks/bench_rank.py).
-LATTICE_STARTS = 1
 MAX_CANDIDATES = 2000
 _INDISTINCT = 2.0     # ΔAICc within which the top candidates are not distinguished
 _NEAR = 4.0           # ΔAICc within which a candidate's fit warnings are shown

@@ -239,12 +239,16 @@ class TwoStage:
     laws : tuple of TwoStageLaw
         One per temperature-dependent rate constant.
     level : float
+    order_warnings : tuple of str
+        Orders fitted at one temperature that disagree with the global fit's
+        (see :func:`order_differences`); empty without a global fit.
     """
 
     orders: str
     groups: tuple
     laws: tuple
     level: float
+    order_warnings: tuple = ()
 
     def law(self, constant):
         for law in self.laws:
@@ -344,7 +348,10 @@ def two_stage(experiment, mechanism, result=None, orders="free", starts=4, seed=
             success=fitted.success, warnings=fitted.warnings))
     laws = tuple(_stage_two(groups, law, spec.kappa, experiment, mechanism, result, level)
                  for law in spec.laws)
-    return TwoStage(orders=orders, groups=tuple(groups), laws=laws, level=level)
+    analysis = TwoStage(orders=orders, groups=tuple(groups), laws=laws, level=level)
+    if result is None:
+        return analysis
+    return replace(analysis, order_warnings=tuple(order_differences(analysis, result)))
 
 
 def _stage_two(groups, law, kappa, experiment, mechanism, result, level):

@@ -16,6 +16,9 @@ from typing import List, Optional
 
 import typer
 
+from kinfit.core.defaults import (CHECKPOINT_EVERY, DEFAULT_CRITERION, DEFAULT_DRAWS,
+                                  DEFAULT_MAX_CONVERSION, DEFAULT_MOVES, DEFAULT_SEED,
+                                  DEFAULT_STARTS, DEFAULT_STEPS, DEFAULT_WALKERS, LATTICE_STARTS)
 from kinfit.core.errors import KinfitError, KinfitWarning
 
 app = typer.Typer(
@@ -67,9 +70,9 @@ def fit_command(
     model: Path = typer.Option(..., "--model", "-m", help="Model file (TOML)."),
     out: Path = typer.Option(Path("kinfit-fit"), "--out", "-o",
                              help="Folder for result.json, figures and curves."),
-    starts: int = typer.Option(8, "--starts", min=1,
+    starts: int = typer.Option(DEFAULT_STARTS, "--starts", min=1,
                                help="Starting points refined by least squares."),
-    seed: int = typer.Option(0, "--seed", help="Seed of the start screen."),
+    seed: int = typer.Option(DEFAULT_SEED, "--seed", help="Seed of the start screen."),
     two_stage: str = typer.Option("free", "--two-stage",
                                   help="For a model with a [temperature] table: the two-stage "
                                        "analysis beside the global fit, with 'free' orders at "
@@ -202,7 +205,7 @@ def _temperature_outputs(exp, mech, result, two_stage, seed, posterior=None):
             analysis = run_two_stage(exp, mech, result, orders=two_stage, starts=1, seed=seed)
         except KinfitError as exc:   # the global fit stands on its own
             typer.echo(f"warning: the two-stage analysis was skipped: {exc}", err=True)
-    return temperature_outputs(activations, analysis, basis_from_fit(result), result)
+    return temperature_outputs(activations, analysis, basis_from_fit(result))
 
 
 @app.command("sample")
@@ -211,11 +214,11 @@ def sample_command(
     model: Path = typer.Option(..., "--model", "-m", help="Model file (TOML)."),
     out: Path = typer.Option(Path("kinfit-posterior"), "--out", "-o",
                              help="Folder for posterior.json, chain.npz and figures."),
-    walkers: int = typer.Option(32, "--walkers", min=2, help="Walkers of the ensemble (even, "
+    walkers: int = typer.Option(DEFAULT_WALKERS, "--walkers", min=2, help="Walkers of the ensemble (even, "
                                 "at least twice the sampled parameters)."),
-    steps: int = typer.Option(2000, "--steps", min=1, help="Steps of each walker (a resumed "
+    steps: int = typer.Option(DEFAULT_STEPS, "--steps", min=1, help="Steps of each walker (a resumed "
                               "chain continues up to this total)."),
-    seed: int = typer.Option(0, "--seed", help="Seed of the fit's start screen, the walkers' "
+    seed: int = typer.Option(DEFAULT_SEED, "--seed", help="Seed of the fit's start screen, the walkers' "
                              "start and the sampler."),
     burn: Optional[int] = typer.Option(None, "--burn", min=0, help="Steps to discard "
                                        "[default: 3 autocorrelation times]."),
@@ -223,10 +226,10 @@ def sample_command(
     noise: str = typer.Option("auto", "--noise", help="auto, declared, per-species or shared "
                               "(auto: the experiment's [noise] if declared, else one σ per "
                               "species, sampled)."),
-    moves: str = typer.Option("de", "--moves", help="de (emcee's differential evolution) or "
+    moves: str = typer.Option(DEFAULT_MOVES, "--moves", help="de (emcee's differential evolution) or "
                               "stretch (emcee's own default)."),
-    starts: int = typer.Option(8, "--starts", min=1, help="Starting points of the fit."),
-    checkpoint_every: int = typer.Option(100, "--checkpoint-every", min=1,
+    starts: int = typer.Option(DEFAULT_STARTS, "--starts", min=1, help="Starting points of the fit."),
+    checkpoint_every: int = typer.Option(CHECKPOINT_EVERY, "--checkpoint-every", min=1,
                                          help="Write chain.npz every N steps."),
     resume: bool = typer.Option(False, "--resume", help="Continue the chain in OUT/chain.npz."),
     overwrite: bool = typer.Option(False, "--overwrite", help="Replace a chain already in OUT."),
@@ -334,9 +337,9 @@ def simulate_command(
         None, "--fit",
         help="temperature.json written by 'kinfit fit': predict from the fitted values with "
              "an uncertainty band, and flag conditions outside the fitted range."),
-    draws: int = typer.Option(200, "--draws", min=0,
+    draws: int = typer.Option(DEFAULT_DRAWS, "--draws", min=0,
                               help="Parameter draws for the uncertainty band (with --fit)."),
-    seed: int = typer.Option(0, "--seed", help="Seed of the parameter draws."),
+    seed: int = typer.Option(DEFAULT_SEED, "--seed", help="Seed of the parameter draws."),
     out: Path = typer.Option(Path("kinfit-simulation"), "--out", "-o",
                              help="Folder for simulation.csv and simulation.png."),
 ):
@@ -579,22 +582,22 @@ def rank_command(
              "free-order fit is ranked alongside."),
     out: Path = typer.Option(Path("kinfit-rank"), "--out", "-o",
                              help="Folder for ranking.json, ranking.txt and figures."),
-    starts: int = typer.Option(8, "--starts", min=1,
+    starts: int = typer.Option(DEFAULT_STARTS, "--starts", min=1,
                                help="Starting points for each model given."),
-    lattice_starts: int = typer.Option(1, "--lattice-starts", min=1,
+    lattice_starts: int = typer.Option(LATTICE_STARTS, "--lattice-starts", min=1,
                                        help="Starting points for each fixed-order candidate "
                                             "(they start from the free-order fit)."),
-    criterion: str = typer.Option("aicc", "--criterion",
+    criterion: str = typer.Option(DEFAULT_CRITERION, "--criterion",
                                   help="Sort by aicc, aic or bic."),
     workers: Optional[int] = typer.Option(None, "--workers", min=1,
                                           help="Processes for the fits (default: all CPUs)."),
     initial_rates: bool = typer.Option(True, "--initial-rates/--no-initial-rates",
                                        help="Run the initial-rates cross-check."),
-    conversion: float = typer.Option(0.2, "--conversion",
+    conversion: float = typer.Option(DEFAULT_MAX_CONVERSION, "--conversion",
                                      help="Initial-rates window: fraction of the limiting "
                                           "reactant used up."),
     top: int = typer.Option(10, "--top", min=1, help="Candidates shown in the table."),
-    seed: int = typer.Option(0, "--seed", help="Seed of the start screens."),
+    seed: int = typer.Option(DEFAULT_SEED, "--seed", help="Seed of the start screens."),
     report: bool = typer.Option(True, "--report/--no-report",
                                 help="Also write the self-contained report.html."),
 ):

@@ -32,6 +32,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from kinfit.core.defaults import DEFAULT_STARTS
 from kinfit.core.errors import KinfitError
 from kinfit.inputs.mechanism import format_rate_law
 from kinfit.estimation.residual_checks import check_residuals
@@ -40,9 +41,8 @@ from kinfit.numerics.simulate import Trajectory
 from kinfit.inputs.temperature import ENERGY_UNIT
 from kinfit.inputs.parameters import Role
 
-__all__ = ["FitResult", "fit", "DEFAULT_STARTS"]
+__all__ = ["FitResult", "fit"]
 
-DEFAULT_STARTS = 8
 _SCREEN_RHS = 5_000
 _STEP_CAP_LOG = 2.0   # largest move of log10 k in one iteration (decades)
 _STEP_CAP_REL = 1.0   # largest move elsewhere, relative to the value (or its scale)
@@ -99,6 +99,9 @@ class FitResult:
         by variable projection with standard errors from the full Jacobian,
         resolved spectra and the SVD of full-spectrum data (see
         :mod:`kinfit.spectra`).
+    residual_checks : tuple of TraceCheck
+        Runs test and lag-1 autocorrelation of each trace's residuals (see
+        :mod:`kinfit.estimation.residual_checks`).
     """
 
     mechanism: object
@@ -135,6 +138,7 @@ class FitResult:
     at_bounds: tuple = ()
     bounds: dict = field(default_factory=dict, repr=False)
     signals: object = None
+    residual_checks: tuple = ()
 
     @property
     def reduced_chi2(self):
@@ -230,7 +234,7 @@ class FitResult:
                     "failed_evaluations": self.n_failed, "integrator": self.method},
             "warnings": list(self.warnings),
             "signals": None if self.signals is None else self.signals.to_dict(),
-            "residual_checks": [c.to_dict() for c in check_residuals(self)],
+            "residual_checks": [c.to_dict() for c in self.residual_checks],
         }
 
 
@@ -619,7 +623,8 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
         n_evaluations=evaluator.evaluations, n_integrations=evaluator.integrations,
         n_failed=evaluator.failed, method=_integrator_text(problem.method, evaluator),
         at_bounds=at_bounds,
-        bounds={p.name: (p.min, p.max, p.vary) for p in problem.parameters}, signals=signals)
+        bounds={p.name: (p.min, p.max, p.vary) for p in problem.parameters}, signals=signals,
+        residual_checks=tuple(check_residuals(exp, res)))
 
 
 def _kaufman_jacobian(problem, layout, u):

@@ -42,15 +42,17 @@ import json
 import math
 import sys
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
 
+from kinfit.core.defaults import (CHECKPOINT_EVERY, DEFAULT_MOVES, DEFAULT_STARTS, DEFAULT_STEPS,
+                                  DEFAULT_WALKERS)
 from kinfit.core.atomic import write_bytes
 from kinfit.estimation.diagnostics import diagnose
 from kinfit.core.errors import KinfitError
-from kinfit.estimation.least_squares import DEFAULT_STARTS, fit
+from kinfit.estimation.least_squares import fit
 from kinfit.numerics.problem import FAILED_RESIDUAL, build_problem
 from kinfit.estimation.profile import profile_intervals
 from kinfit.estimation.space import parameter_space
@@ -58,11 +60,8 @@ from kinfit.inputs.parameters import Role
 
 __all__ = ["Posterior", "Settings", "ChainState", "RunBands", "sample", "run_ensemble",
            "load_chain", "write_chain", "summarise", "compare_intervals",
-           "DEFAULT_WALKERS", "DEFAULT_STEPS", "CHECKPOINT_EVERY", "CHAIN_FILE", "MOVES"]
+           "CHAIN_FILE", "MOVES"]
 
-DEFAULT_WALKERS = 32
-DEFAULT_STEPS = 2000
-CHECKPOINT_EVERY = 100
 CHAIN_FILE = "chain.npz"
 MOVES = ("de", "stretch")
 Z95 = 1.959963984540054          # scipy.stats.norm.ppf(0.975)
@@ -82,7 +81,7 @@ class Settings:
     steps: int = DEFAULT_STEPS
     seed: int = 0
     noise: str = "auto"
-    moves: str = "de"
+    moves: str = DEFAULT_MOVES
     burn: int | None = None
     thin: int = 1
     checkpoint_every: int = CHECKPOINT_EVERY
@@ -193,6 +192,9 @@ class Posterior:
         Sampling wall time, seconds.
     stopped : str
         ``"completed"`` or ``"time budget"``.
+    intervals : tuple of dict
+        The covariance, profile and posterior 95 % intervals of each parameter
+        side by side, with flags (see :func:`compare_intervals`).
     """
 
     fit: object
@@ -217,6 +219,7 @@ class Posterior:
     n_failed: int = 0
     elapsed: float = 0.0
     stopped: str = "completed"
+    intervals: tuple = ()
 
     @property
     def chain(self):
@@ -255,7 +258,7 @@ class Posterior:
 
     def to_dict(self):
         """Plain-Python content of ``posterior.json``."""
-        intervals = {row["name"]: row for row in compare_intervals(self)}
+        intervals = {row["name"]: row for row in self.intervals}
         params = {}
         for name in self.names:
             entry = dict(self.summary[name])
@@ -704,7 +707,7 @@ def _bands(space, samples_u, rng, n_draws=_BAND_DRAWS, n_grid=200):
 # --------------------------------------------------------------- front door
 
 def sample(experiment, mechanism, walkers=DEFAULT_WALKERS, steps=DEFAULT_STEPS, seed=0, *,
-           noise="auto", moves="de", burn=None, thin=1, checkpoint=None,
+           noise="auto", moves=DEFAULT_MOVES, burn=None, thin=1, checkpoint=None,
            checkpoint_every=CHECKPOINT_EVERY, resume=False, max_time=None, progress=None,
            fit_result=None, starts=DEFAULT_STARTS, profile=True, bands=True):
     """Sample the posterior of a mechanism's parameters given an experiment.
@@ -835,7 +838,7 @@ def _analyse(space, fit_result, target, state, stopped, settings, rng, profile, 
     if target.failed:
         warnings.append(f"{target.failed} of {target.evaluations} parameter sets could not be "
                         f"integrated and were rejected")
-    return Posterior(
+    post = Posterior(
         fit=fit_result, names=space.names, labels=space.labels,
         roles=dict(zip(space.names, space.roles)), units=units,
         priors=dict(zip(space.names, space.priors)), noise=space.noise, samples=samples,
@@ -843,3 +846,4 @@ def _analyse(space, fit_result, target, state, stopped, settings, rng, profile, 
         diagnostics=diag, profiles=profiles, bands=run_bands, settings=settings,
         warnings=tuple(warnings), n_evaluations=total, n_failed=target.failed,
         elapsed=state.elapsed, stopped=stopped)
+    return replace(post, intervals=tuple(compare_intervals(post)))

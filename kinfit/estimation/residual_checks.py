@@ -102,12 +102,15 @@ def _lag1(res):
     return float(res[1:] @ res[:-1]) / denom if denom > 0 and res.size > 2 else None
 
 
-def check_residuals(result):
+def check_residuals(experiment, residuals):
     """Runs test and lag-1 autocorrelation of every trace of a fit.
 
     Parameters
     ----------
-    result : FitResult
+    experiment : Experiment
+        The runs, in the order of the residual vector.
+    residuals : ndarray [n_points]
+        The fit's residuals, trace by trace.
 
     Returns
     -------
@@ -115,10 +118,10 @@ def check_residuals(result):
     """
     out = []
     start = 0
-    for run in result.experiment.runs:
+    for run in experiment.runs:
         for trace in run.traces:
             n = trace.times.size
-            res = np.asarray(result.residuals[start:start + n], dtype=float)
+            res = np.asarray(residuals[start:start + n], dtype=float)
             start += n
             runs, z, p = runs_test(res)
             signs = np.sign(res)

@@ -250,16 +250,14 @@ def _law_text(act):
             f"k_ref (T/T_ref) exp[−ΔH‡/R (1/T − 1/T_ref)], κ = {act.kappa:g}")
 
 
-def format_activation(activations, two_stage=None, result=None, cautions=True):
+def format_activation(activations, two_stage=None, cautions=True):
     """Text summary of the activation parameters (and the two-stage analysis beside them).
 
     Parameters
     ----------
     activations : sequence of Activation
     two_stage : TwoStage, optional
-    result : FitResult, optional
-        The global fit; with a two-stage analysis of free orders, its orders
-        are compared with the per-temperature ones.
+        With its ``order_warnings`` when it was given the global fit.
     cautions : bool
         Append :func:`temperature_cautions`.
     """
@@ -291,7 +289,7 @@ def format_activation(activations, two_stage=None, result=None, cautions=True):
         for note in act.notes:
             out += textwrap.wrap(note, 88, initial_indent="  note: ", subsequent_indent="    ")
     if two_stage is not None:
-        out += [""] + _format_two_stage(two_stage, activations, result)
+        out += [""] + _format_two_stage(two_stage, activations)
     if cautions:
         span = activations[0].temperature_range if activations else None
         out += ["", "Caution (temperature)"] + textwrap.wrap(
@@ -300,9 +298,7 @@ def format_activation(activations, two_stage=None, result=None, cautions=True):
     return "\n".join(out)
 
 
-def _format_two_stage(two_stage, activations, result):
-    from kinfit.analysis.two_stage import order_differences
-
+def _format_two_stage(two_stage, activations):
     how = ("its own orders" if two_stage.orders == "free"
            else "orders fixed at the global fit's values")
     out = textwrap.wrap(f"Two-stage analysis (k fitted at each temperature with {how}, then "
@@ -328,14 +324,12 @@ def _format_two_stage(two_stage, activations, result):
                              f"two-stage {level:g} %", f"global fit {level:g} %"))
         for note in law.notes:
             out += textwrap.wrap(note, 88, initial_indent="  note: ", subsequent_indent="    ")
-    if result is not None:
-        for message in order_differences(two_stage, result):
-            out += textwrap.wrap(message, 88, initial_indent="  warning: ",
-                                 subsequent_indent="    ")
+    for message in two_stage.order_warnings:
+        out += textwrap.wrap(message, 88, initial_indent="  warning: ", subsequent_indent="    ")
     return out
 
 
-def temperature_outputs(activations, two_stage=None, basis=None, result=None):
+def temperature_outputs(activations, two_stage=None, basis=None):
     """Files and summary text of a temperature fit, computed but not written.
 
     Returns
@@ -358,14 +352,11 @@ def temperature_outputs(activations, two_stage=None, basis=None, result=None):
 
     from kinfit.figures.plots import plot_arrhenius, plot_eyring
     from kinfit.analysis.prediction import basis_to_dict
-    from kinfit.analysis.two_stage import order_differences
-
     span = activations[0].temperature_range if activations else None
     data = {
         "activation": [a.to_dict() for a in activations],
         "two_stage": None if two_stage is None else two_stage.to_dict(),
-        "order_warnings": [] if two_stage is None or result is None else
-        list(order_differences(two_stage, result)),
+        "order_warnings": [] if two_stage is None else list(two_stage.order_warnings),
         "prediction_basis": None if basis is None else basis_to_dict(basis),
         "cautions": temperature_cautions(span),
     }
@@ -374,7 +365,7 @@ def temperature_outputs(activations, two_stage=None, basis=None, result=None):
         fig = plot(activations, two_stage)
         for fmt in ("png", "svg"):
             files[f"{name}.{fmt}"] = figure_bytes(fig, fmt)
-    return files, format_activation(activations, two_stage, result)
+    return files, format_activation(activations, two_stage)
 
 
 def _plain(value):
@@ -841,8 +832,6 @@ def format_posterior(post, cautions=True):
     figures, the correlation of each rate constant with each order, the
     priors and the cautions.
     """
-    from kinfit.estimation.posterior import compare_intervals
-
     fit, diag, settings = post.fit, post.diagnostics, post.settings
     exp, mech = fit.experiment, fit.mechanism
     out = [f"Posterior of '{mech.name}' given {len(exp.runs)} runs ({fit.n_points} points)",
@@ -861,7 +850,7 @@ def format_posterior(post, cautions=True):
     out += ["", "Parameters: posterior median ± sd, and 95 % intervals of three kinds",
             "  (covariance = fit ± 1.96 SE; profile likelihood; posterior 2.5–97.5 %)"]
     rows = []
-    for row in compare_intervals(post):
+    for row in post.intervals:
         name = row["name"]
         s = post.summary[name]
         rows.append((name, post.units.get(name) or "", format_value(s["median"], s["sd"]),
