@@ -27,7 +27,7 @@ _EXPORTS = {
     "with_fixed": "inputs.mechanism",
     "Experiment": "inputs.experiment",
     "Run": "inputs.experiment",
-    "Trace": "inputs.experiment",
+    "Trace": "inputs.tables",
     "load_experiment": "inputs.experiment",
     "simulate": "numerics.simulate",
     "Trajectory": "numerics.simulate",

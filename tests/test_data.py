@@ -242,15 +242,15 @@ def test_any_experiment_text_gives_an_experiment_or_a_kinfit_error(files, text):
                         "value,species,time,run,note"]))
 def test_fast_and_careful_long_readers_agree(tmp_path_factory, rows, header):
     # The fast numeric reader must return exactly what the careful reader does.
-    from kinfit.inputs.experiment import _careful_long, _fast_long
+    from kinfit.inputs.tables import careful_long, fast_long
 
     cols = [c.lower() for c in header.split(",")]
     lines = [header] + [",".join({"run": r, "time": repr(t), "species": s, "value": repr(v),
                                   "note": "x"}[c] for c in cols) for r, t, s, v in rows]
     path = tmp_path_factory.mktemp("fast") / "t.csv"
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")
-    fast = _fast_long(path)
-    careful = _careful_long(path, "t.csv")
+    fast = fast_long(path)
+    careful = careful_long(path, "t.csv")
     assert fast is not None
     for a, b in zip(fast, careful):
         np.testing.assert_array_equal(a, b)

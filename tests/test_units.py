@@ -66,3 +66,20 @@ def test_compound_units_are_parenthesised():
     assert rate_constant_unit("mol/L", "min", 2) == "(mol/L)^-1 min^-1"
     assert format_power("mM", 0) == ""
     assert rate_constant_unit("M", "s", float("nan")) is None
+
+
+def test_one_error_type_from_the_pint_adapter():
+    # every pint failure arrives as UnitError; conversions checked against SI definitions
+    # (1 mm = 0.1 cm; 0 °C = scipy.constants.zero_Celsius K)
+    from scipy.constants import zero_Celsius
+
+    from kinfit.core.units import UnitError, conversion_factor, quantity_in, to_kelvin
+
+    assert quantity_in("2 mm", "cm") == pytest.approx(0.2)
+    assert to_kelvin(25.0, "degC") == pytest.approx(zero_Celsius + 25.0)
+    assert conversion_factor("mM", "M") == pytest.approx(1e-3)
+    for bad in (lambda: conversion_factor("M", "g/L"), lambda: to_kelvin(1.0, "s"),
+                lambda: quantity_in("2 parsecs of nothing", "cm"),
+                lambda: conversion_factor("furlongs per", "M")):
+        with pytest.raises(UnitError):
+            bad()

@@ -5,6 +5,11 @@ so fitted rate constants come out in those units. pint is used to check that a
 unit string means what its field says (a time, a concentration, a
 temperature), to convert temperatures to kelvin and to convert values between
 compatible units where files disagree.
+
+This module is the one adapter to pint: nothing else in kinfit imports it.
+pint signals a bad unit or an impossible conversion with several exception
+types; every function here turns them into :class:`UnitError`, so callers
+catch one type and say what was expected.
 """
 
 from __future__ import annotations
@@ -15,8 +20,12 @@ from dataclasses import dataclass
 
 from kinfit.core.errors import KinfitError
 
-__all__ = ["Units", "parse_units", "check_unit", "to_kelvin", "conversion_factor",
-           "rate_constant_unit", "format_power"]
+__all__ = ["Units", "UnitError", "parse_units", "check_unit", "to_kelvin", "conversion_factor",
+           "quantity_in", "rate_constant_unit", "format_power"]
+
+
+class UnitError(ValueError):
+    """A unit pint cannot read, or a conversion between incompatible units."""
 
 # What each field may hold, as pint dimensionalities (common practice: molar,
 # molal and mass concentrations are all used for kinetic traces).
@@ -47,7 +56,7 @@ def _parse(text: str):
     try:
         unit = ureg.Unit(text)
     except Exception as exc:  # pint raises several types; all mean "cannot read"
-        raise ValueError(str(exc)) from None
+        raise UnitError(str(exc)) from None
     return unit
 
 
@@ -73,7 +82,7 @@ def check_unit(text, kind, where):
     text = text.strip()
     try:
         unit = _parse(text)
-    except ValueError:
+    except UnitError:
         raise KinfitError(f"{where}: cannot read the unit {text!r}; expected a {kind} "
                           f"unit such as {_EXAMPLES[kind]}") from None
     if str(unit.dimensionality) not in _DIMENSIONS[kind]:
@@ -123,7 +132,12 @@ def parse_units(table, where):
 def to_kelvin(value, unit):
     """Convert a temperature `value` in `unit` (e.g. ``"degC"``) to kelvin."""
     ureg = registry()
-    return float(ureg.Quantity(value, _parse(unit)).to("kelvin").magnitude)
+    try:
+        return float(ureg.Quantity(value, _parse(unit)).to("kelvin").magnitude)
+    except UnitError:
+        raise
+    except Exception as exc:  # pint: not a temperature
+        raise UnitError(str(exc)) from None
 
 
 def conversion_factor(from_unit, to_unit):
@@ -132,7 +146,20 @@ def conversion_factor(from_unit, to_unit):
     Only for units without an offset (not temperatures in °C).
     """
     ureg = registry()
-    return float(ureg.Quantity(1.0, _parse(from_unit)).to(_parse(to_unit)).magnitude)
+    try:
+        return float(ureg.Quantity(1.0, _parse(from_unit)).to(_parse(to_unit)).magnitude)
+    except UnitError:
+        raise
+    except Exception as exc:  # pint: dimensions differ (e.g. molar and mass concentrations)
+        raise UnitError(str(exc)) from None
+
+
+def quantity_in(text, unit):
+    """The magnitude of a quantity written as text (``"2 mm"``) in `unit` (``"cm"``)."""
+    try:
+        return float(registry().Quantity(text).to(unit).magnitude)
+    except Exception as exc:  # pint raises several types; all mean "not such a quantity"
+        raise UnitError(str(exc)) from None
 
 
 def format_power(symbol, power):

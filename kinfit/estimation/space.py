@@ -46,7 +46,7 @@ from kinfit.core.errors import KinfitError
 from kinfit.inputs.priors import Prior
 from kinfit.inputs.parameters import Role
 
-__all__ = ["ParameterSpace", "parameter_space", "NOISE_MODES", "Role.NOISE"]
+__all__ = ["ParameterSpace", "parameter_space", "NOISE_MODES"]
 
 NOISE_MODES = ("auto", "declared", "per-species", "shared")
 _LN10 = math.log(10.0)

@@ -1,1 +1,2 @@
-"""kinfit.figures"""
+"""Every figure kinfit draws; the only layer that imports matplotlib.
+"""

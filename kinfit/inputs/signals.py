@@ -146,11 +146,11 @@ def parse_path_length(value, loc):
     if isinstance(value, (int, float)):
         cm = float(value)
     elif isinstance(value, str):
-        from kinfit.core.units import registry
+        from kinfit.core.units import UnitError, quantity_in
 
         try:
-            cm = float(registry().Quantity(value).to("cm").magnitude)
-        except Exception:   # pint raises several types; all mean "not a length"
+            cm = quantity_in(value, "cm")
+        except UnitError:
             raise KinfitError(f"{loc}: cannot read the path length {value!r}; expected a "
                               f"length like \"1 cm\" or \"2 mm\"") from None
     else:

@@ -52,7 +52,7 @@ from kinfit.core.units import to_kelvin
 from kinfit.inputs.parameters import Role
 
 __all__ = ["R", "K_B", "H", "KILO", "STANDARD_TEMPERATURE", "ARRHENIUS", "EYRING",
-           "Role.ACTIVATION_ENERGY", "Role.ACTIVATION_ENTHALPY", "ENERGY_UNIT", "RateLaw",
+           "ENERGY_UNIT", "RateLaw",
            "TemperatureSpec", "parse_temperature", "check_roles", "reference_temperature",
            "TemperatureLayout", "join_temperatures", "rate_constant", "Linear",
            "linear_forms", "ln_rate_form"]
