@@ -15,7 +15,8 @@ from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.mechanism import mechanism_from_text
 from kinfit.numerics.problem import build_problem
-from kinfit.numerics.spectra import absorbance, significant_components
+from kinfit.numerics.signal_model import absorbance
+from kinfit.numerics.svd import significant_components
 
 # --------------------------------------------------------------- NIST Lanczos
 #
