@@ -441,7 +441,7 @@ def components_command(
     with _handled():
         from kinfit.inputs.experiment import load_experiment
         from kinfit.output.report import format_components
-        from kinfit.numerics.spectra import significant_components, stacked_spectra
+        from kinfit.numerics.svd import significant_components, stacked_spectra
 
         exp = load_experiment(experiment)
         data = stacked_spectra(exp)

@@ -35,6 +35,7 @@ import numpy as np
 from kinfit.core.defaults import DEFAULT_STARTS
 from kinfit.core.errors import KinfitError
 from kinfit.inputs.mechanism import format_rate_law
+from kinfit.estimation.linear_unknowns import resolve_signals
 from kinfit.estimation.residual_checks import check_residuals
 from kinfit.numerics.problem import FAILED_RESIDUAL, build_problem, information_criteria
 from kinfit.numerics.simulate import Trajectory
@@ -582,8 +583,8 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
                             f"declared noise; the noise may be overestimated")
     signals = None
     if problem.signal is not None:
-        signals = problem.signal.resolve(problem, values_row, covariance, layout.free,
-                                         1.0 if declared else chi2 / dof)
+        signals = resolve_signals(problem, values_row, covariance, layout.free,
+                                  1.0 if declared else chi2 / dof)
         warnings += list(signals.warnings)
     if failed:
         warnings.append(f"{failed} model evaluation(s) failed to integrate on the way to the "

@@ -99,7 +99,7 @@ def _legend(axes):
 def _spectrum_panel(ax, spectra, run, scale=None):
     """Full-spectrum data of one run at the peak wavelengths: data and fit, or with a
     `scale` the residuals (fit − data)/scale."""
-    from kinfit.numerics.spectra import choose_wavelengths
+    from kinfit.figures.wavelengths import choose_wavelengths
 
     fitted = spectra.fitted[spectra.runs.index(run.name)]
     picks = choose_wavelengths(spectra)

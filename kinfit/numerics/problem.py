@@ -33,7 +33,7 @@ import numpy as np
 
 from kinfit.core.errors import KinfitError
 from kinfit.numerics.observation import build_observation
-from kinfit.numerics.spectra import build_signal_model
+from kinfit.numerics.signal_build import build_signal_model
 from kinfit.numerics.compiled import KIND_INITIAL, KIND_LOG_K, KIND_ORDER
 from kinfit.inputs.mechanism import rates as rates_fn
 from kinfit.numerics.simulate import ATOL, MAX_RHS_CALLS, RTOL, integrate_flat, simulate_runs

@@ -494,7 +494,7 @@ def format_signals(result, wavelengths=None):
     wavelengths : sequence of float, optional
         Wavelengths at which to quote the resolved spectra.
     """
-    from kinfit.numerics.spectra import choose_wavelengths
+    from kinfit.figures.wavelengths import choose_wavelengths
 
     sig = result.signals
     out = ["Signals (Beer–Lambert: signal = offset + drift·t + ℓ Σ ε_X [X]; absorptivities, "
@@ -581,7 +581,7 @@ def signal_outputs(result, wavelengths=None):
         :func:`format_signals`.
     """
     from kinfit.figures.plots import plot_components, plot_residual_map, plot_spectra, plot_wavelength_traces
-    from kinfit.numerics.spectra import choose_wavelengths
+    from kinfit.figures.wavelengths import choose_wavelengths
 
     import json
 
