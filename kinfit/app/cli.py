@@ -615,7 +615,8 @@ def rank_command(
       --orders m_thiol=0,0.5,1,1.5,2 --orders m_acrylate=0,0.5,1,1.5,2 --out ranking
     """
     with _handled():
-        from kinfit.analysis.ranking import parse_order_grid, rank
+        from kinfit.analysis.lattice import parse_order_grid
+        from kinfit.analysis.ranking import rank
         from kinfit.inputs.experiment import load_experiment
         from kinfit.inputs.mechanism import load_mechanism
         from kinfit.output.report import format_ranking, write_ranking

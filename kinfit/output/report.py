@@ -689,7 +689,7 @@ def format_ranking(comparison, top=10, cautions=True):
         for w in comparison.warnings:
             out += textwrap.wrap(w, 88, initial_indent="  - ", subsequent_indent="    ",
                                  break_on_hyphens=False)
-    from kinfit.analysis.ranking import SOURCES
+    from kinfit.analysis.criteria import SOURCES
 
     out += ["", "Evidence scales"]
     for key in ("aicc", "bic"):
