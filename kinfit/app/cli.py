@@ -389,7 +389,8 @@ def simulate_command(
 def _predict(mech, model, initial, overrides, times, units, temperature, temperature_unit,
              fit_file, draws, seed, out):
     """The prediction path of ``simulate``: temperature, fit basis, band and flags."""
-    from kinfit.analysis.prediction import FittedRange, PredictionBasis, load_basis, predict
+    from kinfit.analysis.prediction import predict
+    from kinfit.inputs.fit_basis import FittedRange, PredictionBasis, load_basis
     from kinfit.output.report import format_prediction, write_prediction
     from kinfit.core.units import check_unit, to_kelvin
 

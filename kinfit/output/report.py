@@ -351,7 +351,7 @@ def temperature_outputs(activations, two_stage=None, basis=None):
     import json
 
     from kinfit.figures.plots import plot_arrhenius, plot_eyring
-    from kinfit.analysis.prediction import basis_to_dict
+    from kinfit.inputs.fit_basis import basis_to_dict
     span = activations[0].temperature_range if activations else None
     data = {
         "activation": [a.to_dict() for a in activations],
