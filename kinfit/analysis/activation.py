@@ -67,9 +67,9 @@ class Estimate:
     value: float | None
     stderr: float | None
     unit: str
-    interval: tuple | None = None
-    profile_interval: tuple | None = None
-    posterior_interval: tuple | None = None
+    interval: tuple[float, float] | None = None
+    profile_interval: tuple[float, float] | None = None
+    posterior_interval: tuple[float, float] | None = None
     fitted: bool = False
 
     @property
@@ -103,9 +103,9 @@ class RateAt:
     temperature: float
     value: float
     stderr: float | None
-    interval: tuple | None
+    interval: tuple[float, float] | None
     extrapolated: bool = False
-    posterior_interval: tuple | None = None
+    posterior_interval: tuple[float, float] | None = None
 
     def to_dict(self):
         return {"temperature_K": self.temperature, "value": self.value,
@@ -159,16 +159,16 @@ class Activation:
     reference: float
     kappa: float
     unit: str | None
-    estimates: tuple
-    rates: tuple
-    temperature_range: tuple
-    center: tuple
+    estimates: tuple[Estimate, ...]
+    rates: tuple[RateAt, ...]
+    temperature_range: tuple[float, float]
+    center: tuple[float, float]
     covariance: np.ndarray | None
     si_factor: float | None
     si_unit: str | None
     level: float
     quantile: float
-    notes: tuple = ()
+    notes: tuple[str, ...] = ()
 
     def estimate(self, name):
         """The :class:`Estimate` called `name` ("Ea", "A", "dH", "dS", "dG"), or None."""

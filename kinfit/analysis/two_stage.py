@@ -173,11 +173,11 @@ class TemperatureGroup:
     """
 
     temperature: float
-    runs: tuple
-    values: dict
-    stderr: dict
+    runs: tuple[str, ...]
+    values: dict[str, float]
+    stderr: dict[str, float | None]
     success: bool
-    warnings: tuple = ()
+    warnings: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -207,11 +207,11 @@ class TwoStageLaw:
     k_stderr: np.ndarray
     arrhenius: LineFit
     eyring: LineFit | None
-    estimates: tuple
-    notes: tuple = ()
+    estimates: tuple[Estimate, ...]
+    notes: tuple[str, ...] = ()
 
     def estimate(self, name):
-        """The :class:`~kinfit.activation.Estimate` called `name`, or None."""
+        """The :class:`~kinfit.analysis.activation.Estimate` called `name`, or None."""
         return find_estimate(self.estimates, name)
 
     def to_dict(self):
@@ -245,10 +245,10 @@ class TwoStage:
     """
 
     orders: str
-    groups: tuple
-    laws: tuple
+    groups: tuple[TemperatureGroup, ...]
+    laws: tuple[TwoStageLaw, ...]
     level: float
-    order_warnings: tuple = ()
+    order_warnings: tuple[str, ...] = ()
 
     def law(self, constant):
         for law in self.laws:
