@@ -132,22 +132,22 @@ def warm_start(mechanism, template_fit, experiment):
 
 # ---------------------------------------------------------------- fitting
 
-def _fit_task(experiment, mechanism, starts, seed):
+def _fit_one(experiment, mechanism, starts, seed):
     """Worker entry point (top level so that it pickles)."""
     return fit(experiment, mechanism, starts=starts, seed=seed)
 
 
-def _workers(requested, n_tasks):
+def _workers(requested, n_fits):
     if requested is not None:
         if not isinstance(requested, int) or requested < 1:
             raise KinfitError(f"workers must be a whole number of at least 1, got "
                               f"{requested!r}")
-        return min(requested, n_tasks)
+        return min(requested, n_fits)
     try:
         available = len(os.sched_getaffinity(0))
     except AttributeError:
         available = os.cpu_count() or 1
-    return max(1, min(available, n_tasks))
+    return max(1, min(available, n_fits))
 
 
 def fit_candidates(experiment, candidates, starts=DEFAULT_STARTS, seed=0, workers=None,
@@ -210,7 +210,7 @@ def fit_candidates(experiment, candidates, starts=DEFAULT_STARTS, seed=0, worker
         queue = [(c, job(c)) for c in ready]
         while queue:
             c, args = queue.pop(0)
-            queue.extend(finished(c, _named(c, _fit_task, *args)))
+            queue.extend(finished(c, _named(c, _fit_one, *args)))
     else:
         _fit_in_pool(n_workers, [(c, job(c)) for c in ready], finished)
     return [results[c.name] for c in candidates]
@@ -228,14 +228,14 @@ def _fit_in_pool(n_workers, initial, finished):
 
     pool = ProcessPoolExecutor(max_workers=n_workers)
     try:
-        pending = {pool.submit(_fit_task, *args): c for c, args in initial}
+        pending = {pool.submit(_fit_one, *args): c for c, args in initial}
         while pending:
             done, _ = wait(pending, return_when=FIRST_COMPLETED)
             for future in done:
                 c = pending.pop(future)
                 result = _named(c, future.result)
                 for child, args in finished(c, result):
-                    pending[pool.submit(_fit_task, *args)] = child
+                    pending[pool.submit(_fit_one, *args)] = child
     except BaseException:
         pool.shutdown(wait=False, cancel_futures=True)
         raise
