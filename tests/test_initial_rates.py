@@ -1,4 +1,5 @@
-"""The initial-rates method against closed forms, hand calculation and statsmodels."""
+"""The order regression and the whole initial-rates method against closed forms, hand
+calculation and statsmodels."""
 
 from __future__ import annotations
 
@@ -11,68 +12,10 @@ import statsmodels.api as sm
 from conftest import write
 from kinfit.inputs.experiment import load_experiment
 from kinfit.core.errors import KinfitError
-from kinfit.analysis.initial_rates import (check_orders, initial_rates, initial_slope, polynomial_fit,
-                                  rate_constant_at, regress_orders)
+from kinfit.analysis.initial_rates import (check_orders, initial_rates, rate_constant_at,
+                                           regress_orders)
 from kinfit.inputs.mechanism import mechanism_from_text
 from kinfit.numerics.simulate import simulate
-
-
-# ---------------------------------------------------------------- slopes
-
-def test_polynomial_fit_matches_statsmodels_ols():
-    # Reference: statsmodels OLS on the design [1, t, t²]; unknown noise, so the
-    # covariance is scaled by RSS/(n − 3) in both.
-    rng = np.random.default_rng(11)
-    t = np.linspace(0.0, 12.0, 9)
-    y = 5.0 - 0.4 * t + 0.01 * t ** 2 + rng.normal(0.0, 0.05, t.size)
-    coef, cov = polynomial_fit(t, y, degree=2)
-    ols = sm.OLS(y, np.vander(t, 3, increasing=True)).fit()
-    np.testing.assert_allclose(coef, ols.params, rtol=1e-9)
-    np.testing.assert_allclose(np.sqrt(np.diag(cov)), ols.bse, rtol=1e-8)
-    slope, se = initial_slope(t, y, degree=2)
-    assert slope == pytest.approx(ols.params[1], rel=1e-9)
-    assert se == pytest.approx(ols.bse[1], rel=1e-8)
-
-
-def test_polynomial_fit_with_declared_noise_matches_statsmodels_wls():
-    # Reference: statsmodels WLS with weights 1/σ² and a fixed scale of 1 (the
-    # declared σ are trusted, as in kinfit's global fit).
-    rng = np.random.default_rng(12)
-    t = np.linspace(0.0, 6.0, 7)
-    sigma = 0.02 + 0.01 * t
-    y = 2.0 - 0.3 * t + rng.normal(0.0, sigma)
-    coef, cov = polynomial_fit(t, y, degree=2, sigma=sigma)
-    wls = sm.WLS(y, np.vander(t, 3, increasing=True), weights=1 / sigma ** 2).fit(
-        cov_type="fixed scale")
-    np.testing.assert_allclose(coef, wls.params, rtol=1e-9)
-    np.testing.assert_allclose(np.sqrt(np.diag(cov)), wls.bse, rtol=1e-8)
-
-
-def test_slope_of_a_zero_order_trace_is_exact():
-    # Zero order, textbook closed form [A] = [A]0 − k t: a straight line, so a
-    # polynomial of any degree returns the slope −k exactly.
-    t = np.linspace(0.0, 10.0, 6)
-    slope, se = initial_slope(t, 0.8 - 0.035 * t, degree=2)
-    assert slope == pytest.approx(-0.035, rel=1e-12)
-    assert se < 1e-12
-
-
-def test_straight_tangent_bias_follows_taylor_and_quadratic_removes_it():
-    # First order, textbook closed form [A] = exp(−k t). Taylor expansion: a
-    # least-squares line through [0, T] has slope −k (1 − kT/2 + ...) to first
-    # order, i.e. relative bias ≈ kT/2 (common practice; derived for this test);
-    # the quadratic removes that term, leaving O((kT)²).
-    k, t = 0.1, np.linspace(0.0, 1.0, 11)
-    y = np.exp(-k * t)
-    line, _ = initial_slope(t, y, degree=1)
-    quad, _ = initial_slope(t, y, degree=2)
-    assert abs(line / -k - 1) == pytest.approx(k * 1.0 / 2, rel=0.1)
-    assert abs(quad / -k - 1) < (k * 1.0) ** 2 / 5
-
-
-def test_too_few_points_for_a_standard_error():
-    with pytest.raises(KinfitError, match="needs at least 4 points"):
-        initial_slope([0, 1, 2], [1, 0.9, 0.8], degree=2)
 
 
 # ------------------------------------------------------------ regression

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import math
 
 import numpy as np
@@ -11,8 +10,8 @@ import scipy.constants as sc
 
 from kinfit.analysis.activation import activation_parameters
 from kinfit.core.errors import KinfitError
-from kinfit.analysis.prediction import (FittedRange, basis_from_fit, basis_to_dict, extrapolation_flags,
-                               fitted_range, load_basis, predict)
+from kinfit.analysis.prediction import basis_from_fit, extrapolation_flags, fitted_range, predict
+from kinfit.inputs.fit_basis import FittedRange
 
 TIMES = np.linspace(0.0, 200.0, 41)
 
@@ -83,42 +82,6 @@ def test_band_from_samples(arrhenius_study):
     # same Gaussian, so bands of similar width (sampling accuracy, common practice)
     width = pred.upper[20, 0] - pred.lower[20, 0]
     assert width == pytest.approx(ref.upper[20, 0] - ref.lower[20, 0], rel=0.35)
-
-
-def test_basis_round_trip(tmp_path, arrhenius_study):
-    result = arrhenius_study["result"]
-    basis = basis_from_fit(result)
-    path = tmp_path / "temperature.json"
-    path.write_text(json.dumps({"prediction_basis": basis_to_dict(basis)}))
-    loaded = load_basis(path, result.mechanism)
-    assert loaded.values == basis.values and loaded.free_names == basis.free_names
-    np.testing.assert_allclose(loaded.covariance, basis.covariance)
-    assert loaded.reference == basis.reference and loaded.fitted == basis.fitted
-    a = predict(basis, {"A": 0.8}, TIMES, 330.0, seed=4)
-    b = predict(loaded, {"A": 0.8}, TIMES, 330.0, seed=4)
-    np.testing.assert_allclose(a.upper, b.upper)
-
-
-@pytest.mark.parametrize("text, message", [
-    ("{", "line 1: not valid JSON"),
-    ('{"other": 1}', "not a prediction basis"),
-    ('{"prediction_basis": {"parameters": {"x": 1}}}', "not a prediction basis"),
-])
-def test_load_basis_errors(tmp_path, arrhenius_study, text, message):
-    path = tmp_path / "t.json"
-    path.write_text(text)
-    with pytest.raises(KinfitError, match=message):
-        load_basis(path, arrhenius_study["mechanism"])
-    with pytest.raises(KinfitError, match="file not found"):
-        load_basis(tmp_path / "none.json", arrhenius_study["mechanism"])
-
-
-def test_basis_of_another_model_is_refused(tmp_path, arrhenius_study, eyring_study):
-    path = tmp_path / "t.json"
-    path.write_text(json.dumps({"prediction_basis": basis_to_dict(
-        basis_from_fit(eyring_study["result"]))}))
-    with pytest.raises(KinfitError, match="are not the model's"):
-        load_basis(path, arrhenius_study["mechanism"])
 
 
 def test_prediction_errors(arrhenius_study):

@@ -1,7 +1,7 @@
 """Activation parameters from a global fit, and the two-stage analysis beside it.
 
 A model whose rate constants follow Arrhenius or Eyring (see
-:mod:`kinfit.temperature`) is fitted to all runs at all temperatures at once;
+:mod:`kinfit.inputs.temperature`) is fitted to all runs at all temperatures at once;
 k_ref and the energy (Ea or ΔH‡) are ordinary fitted parameters.
 :func:`activation_parameters` turns them into what a chemist reports:
 
@@ -11,7 +11,7 @@ k_ref and the energy (Ea or ΔH‡) are ordinary fitted parameters.
 * k at each measured temperature;
 
 each with a standard error from the fit's covariance. All of them are linear
-in (ln k_ref, E) (:class:`kinfit.temperature.Linear`), so the delta method
+in (ln k_ref, E) (:class:`kinfit.inputs.temperature.Linear`), so the delta method
 is exact on that scale; A, a exponential of ln A, gets the usual first-order
 error A·se(ln A) and an interval exp(ln A ± q se). The law that was not
 fitted is reached through the textbook relations at T_ref
@@ -22,7 +22,7 @@ Other intervals come from elsewhere and are attached by hooks:
 or any other draws) and :func:`with_profile` takes profile-likelihood
 intervals of the fitted parameters.
 
-The two-stage analysis beside the global fit is in :mod:`kinfit.two_stage`.
+The two-stage analysis beside the global fit is in :mod:`kinfit.analysis.two_stage`.
 """
 
 from __future__ import annotations
@@ -33,9 +33,9 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.temperature import (ARRHENIUS, ENERGY_UNIT, STANDARD_TEMPERATURE, linear_forms,
-                          ln_rate_form, reference_temperature)
 from kinfit.core.units import conversion_factor, rate_constant_unit
+from kinfit.inputs.temperature import (ARRHENIUS, ENERGY_UNIT, STANDARD_TEMPERATURE, linear_forms,
+                                       ln_rate_form, reference_temperature)
 
 __all__ = ["Estimate", "RateAt", "Activation", "activation_parameters", "with_posterior",
            "with_profile", "find_estimate", "si_factor", "run_temperatures",
@@ -67,9 +67,9 @@ class Estimate:
     value: float | None
     stderr: float | None
     unit: str
-    interval: tuple | None = None
-    profile_interval: tuple | None = None
-    posterior_interval: tuple | None = None
+    interval: tuple[float, float] | None = None
+    profile_interval: tuple[float, float] | None = None
+    posterior_interval: tuple[float, float] | None = None
     fitted: bool = False
 
     @property
@@ -103,9 +103,9 @@ class RateAt:
     temperature: float
     value: float
     stderr: float | None
-    interval: tuple | None
+    interval: tuple[float, float] | None
     extrapolated: bool = False
-    posterior_interval: tuple | None = None
+    posterior_interval: tuple[float, float] | None = None
 
     def to_dict(self):
         return {"temperature_K": self.temperature, "value": self.value,
@@ -159,16 +159,16 @@ class Activation:
     reference: float
     kappa: float
     unit: str | None
-    estimates: tuple
-    rates: tuple
-    temperature_range: tuple
-    center: tuple
+    estimates: tuple[Estimate, ...]
+    rates: tuple[RateAt, ...]
+    temperature_range: tuple[float, float]
+    center: tuple[float, float]
     covariance: np.ndarray | None
     si_factor: float | None
     si_unit: str | None
     level: float
     quantile: float
-    notes: tuple = ()
+    notes: tuple[str, ...] = ()
 
     def estimate(self, name):
         """The :class:`Estimate` called `name` ("Ea", "A", "dH", "dS", "dG"), or None."""

@@ -17,61 +17,39 @@ planning tools built on it) carries:
 All draws are integrated in one call to :meth:`Problem.simulate`, through a
 one-run problem at the prediction's conditions.
 
-:class:`PredictionBasis` is what a prediction needs from a fit; it is saved
-in ``temperature.json`` (see :func:`basis_to_dict`) so that
-``kinfit simulate --fit`` can predict without refitting.
+:func:`basis_from_fit` gathers what a prediction needs from a fit, a
+:class:`~kinfit.inputs.fit_basis.PredictionBasis`; its file form, written with a
+fit and read back by ``kinfit simulate --fit``, lives in
+:mod:`kinfit.inputs.fit_basis`.
 """
 
 from __future__ import annotations
 
-import json
 import math
 from dataclasses import dataclass, replace
-from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from kinfit.core.defaults import DEFAULT_DRAWS
 from kinfit.analysis.activation import RateAt, interval_quantile
-from kinfit.inputs.experiment import Experiment, Run, Trace, initial_name
+from kinfit.core.defaults import DEFAULT_DRAWS
 from kinfit.core.errors import KinfitError
-from kinfit.numerics.problem import build_problem
-from kinfit.inputs.sources import decode
-from kinfit.inputs.temperature import ln_rate_form, reference_temperature
-from kinfit.core.units import Units
+from kinfit.inputs.experiment import Experiment, Run, Trace, initial_name
+from kinfit.inputs.fit_basis import FittedRange, PredictionBasis
 from kinfit.inputs.parameters import Role
+from kinfit.inputs.temperature import ln_rate_form, reference_temperature
+from kinfit.numerics.problem import build_problem
 
-__all__ = ["FittedRange", "fitted_range", "extrapolation_flags", "PredictionBasis",
-           "basis_from_fit", "basis_to_dict", "load_basis", "Prediction", "predict"]
+if TYPE_CHECKING:
+    from kinfit.core.units import Units
+
+__all__ = ["fitted_range", "extrapolation_flags", "basis_from_fit", "Prediction", "predict"]
 
 _TOL = 1e-9
 
 
-@dataclass(frozen=True)
-class FittedRange:
-    """The conditions a fit's runs covered.
-
-    Attributes
-    ----------
-    temperature : (float, float) or None
-        Lowest and highest run temperature, kelvin; None when the runs have
-        no temperature.
-    initial : dict of str to (float, float)
-        Lowest and highest starting concentration of each species over the
-        runs (fitted starting values included), experiment's units.
-    """
-
-    temperature: tuple | None
-    initial: dict
-
-    def to_dict(self):
-        return {"temperature_K": None if self.temperature is None else
-                list(self.temperature),
-                "initial": {s: list(v) for s, v in self.initial.items()}}
-
-
 def fitted_range(result):
-    """The :class:`FittedRange` of a fit's runs."""
+    """The :class:`~kinfit.inputs.fit_basis.FittedRange` of a fit's runs."""
     exp, mech = result.experiment, result.mechanism
     temps = [r.temperature for r in exp.runs if r.temperature is not None]
     initial = {}
@@ -126,39 +104,8 @@ def extrapolation_flags(fitted, initial, temperature=None, concentration_unit=""
     return tuple(flags)
 
 
-@dataclass(frozen=True)
-class PredictionBasis:
-    """What a prediction needs from a fit.
-
-    Attributes
-    ----------
-    mechanism : Mechanism
-    values : dict of str to float
-        The model's parameters at the fitted values.
-    free_names : tuple of str
-        Model parameters that were fitted (order of `covariance`).
-    covariance : ndarray [n_free, n_free] or None
-        Natural-scale covariance of those parameters.
-    reference : float or None
-        T_ref of the temperature laws, kelvin.
-    fitted : FittedRange
-    units : Units
-    source : str
-        Where the basis came from (for messages).
-    """
-
-    mechanism: object
-    values: dict
-    free_names: tuple
-    covariance: np.ndarray | None
-    reference: float | None
-    fitted: FittedRange
-    units: Units
-    source: str = "<fit>"
-
-
 def basis_from_fit(result):
-    """The :class:`PredictionBasis` of a fit (model parameters only)."""
+    """The :class:`~kinfit.inputs.fit_basis.PredictionBasis` of a fit (model parameters only)."""
     mech = result.mechanism
     names = [n for n in result.free_names if n in mech.parameters]
     cov = None
@@ -174,83 +121,6 @@ def basis_from_fit(result):
                            free_names=tuple(names), covariance=cov, reference=reference,
                            fitted=fitted_range(result), units=result.experiment.units,
                            source=str(result.experiment.source))
-
-
-def basis_to_dict(basis):
-    """The basis as plain Python (the ``prediction_basis`` entry of temperature.json).
-
-    Keys: ``model``, ``parameters`` (name to value), ``free`` (names),
-    ``covariance`` (list of rows, natural scale, or null),
-    ``reference_temperature_K``, ``fitted_range`` (``temperature_K`` as
-    [low, high], ``initial`` as species to [low, high]) and ``units``.
-    """
-    return {
-        "model": basis.mechanism.name,
-        "parameters": dict(basis.values),
-        "free": list(basis.free_names),
-        "covariance": None if basis.covariance is None else basis.covariance.tolist(),
-        "reference_temperature_K": basis.reference,
-        "fitted_range": basis.fitted.to_dict(),
-        "units": {"time": basis.units.time, "concentration": basis.units.concentration,
-                  "temperature": basis.units.temperature},
-    }
-
-
-def load_basis(path, mechanism):
-    """Read the prediction basis saved with a fit (``temperature.json``).
-
-    Parameters
-    ----------
-    path : str or os.PathLike
-    mechanism : Mechanism
-        The model that was fitted; its parameters must match the file's.
-
-    Returns
-    -------
-    PredictionBasis
-
-    Raises
-    ------
-    KinfitError
-        If the file is missing, not JSON, lacks a field or belongs to
-        another model.
-    """
-    path = Path(path)
-    if not path.is_file():
-        raise KinfitError(f"--fit {path}: file not found; give the temperature.json written "
-                          f"by kinfit fit")
-    try:
-        data = json.loads(decode(path.read_bytes(), str(path)))
-        raw = data["prediction_basis"]
-        values = {str(k): float(v) for k, v in raw["parameters"].items()}
-        free = tuple(str(n) for n in raw["free"])
-        cov = None if raw["covariance"] is None else np.asarray(raw["covariance"], dtype=float)
-        reference = raw["reference_temperature_K"]
-        reference = None if reference is None else float(reference)
-        rng = raw["fitted_range"]
-        temps = rng["temperature_K"]
-        fitted = FittedRange(
-            temperature=None if temps is None else (float(temps[0]), float(temps[1])),
-            initial={str(s): (float(v[0]), float(v[1])) for s, v in rng["initial"].items()})
-        units = Units(**{k: str(raw["units"][k]) for k in ("time", "concentration",
-                                                           "temperature")})
-    except KinfitError:
-        raise
-    except json.JSONDecodeError as exc:
-        raise KinfitError(f"{path}, line {exc.lineno}: not valid JSON: {exc.msg}") from None
-    except (KeyError, TypeError, ValueError, IndexError, AttributeError) as exc:
-        raise KinfitError(f"{path}: not a prediction basis written by kinfit fit (missing or "
-                          f"malformed field {exc})") from None
-    if set(values) != set(mechanism.parameters):
-        raise KinfitError(f"{path}: its parameters ({', '.join(sorted(values))}) are not the "
-                          f"model's ({', '.join(sorted(mechanism.parameters))}); was it "
-                          f"written for {mechanism.source}?")
-    if not set(free) <= set(values) or (cov is not None and cov.shape != (len(free),) * 2):
-        raise KinfitError(f"{path}: the covariance does not match the list of fitted "
-                          f"parameters")
-    return PredictionBasis(mechanism=mechanism, values=values, free_names=free,
-                           covariance=cov, reference=reference, fitted=fitted, units=units,
-                           source=str(path))
 
 
 @dataclass(frozen=True)
@@ -285,20 +155,20 @@ class Prediction:
     """
 
     times: np.ndarray
-    species: tuple
+    species: tuple[str, ...]
     conc: np.ndarray
     lower: np.ndarray | None
     upper: np.ndarray | None
     temperature: float | None
-    initial: dict
-    rates: tuple
+    initial: dict[str, float]
+    rates: tuple[tuple[str, RateAt], ...]
     uncertainty: str
     draws: int
     failed: int
     level: float
-    flags: tuple
+    flags: tuple[str, ...]
     units: Units
-    fitted_temperature: tuple | None = None
+    fitted_temperature: tuple[float, float] | None = None
     range_known: bool = True
 
     @property
@@ -444,7 +314,7 @@ def predict(basis, initial, times, temperature=None, samples=None, names=None,
     Parameters
     ----------
     basis : PredictionBasis
-        From :func:`basis_from_fit` or :func:`load_basis`.
+        From :func:`basis_from_fit` or :func:`kinfit.inputs.fit_basis.load_basis`.
     initial : mapping of str to float
         Starting concentrations (experiment's units); species not given
         start at zero.

@@ -1,7 +1,7 @@
 """The two-stage analysis: k at each temperature, then straight lines.
 
 The classic way to temperature dependence, kept beside the global fit (see
-:mod:`kinfit.activation`) for comparison: the model is fitted separately to
+:mod:`kinfit.analysis.activation`) for comparison: the model is fitted separately to
 the runs of each temperature, giving k(T) with a standard error, and then
 
 * ln k is fitted against 1/T (Arrhenius): slope -Ea/R, intercept ln A;
@@ -25,13 +25,13 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from kinfit.analysis.activation import (UNITS, Estimate, find_estimate, interval_quantile, run_temperatures,
-                         si_factor)
+from kinfit.analysis.activation import (UNITS, Estimate, find_estimate, interval_quantile,
+                                        run_temperatures, si_factor)
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
-from kinfit.inputs.temperature import (ENERGY_UNIT, H, K_B, KILO, R, STANDARD_TEMPERATURE,
-                          rate_constant, reference_temperature)
 from kinfit.inputs.parameters import Role
+from kinfit.inputs.temperature import (ENERGY_UNIT, H, K_B, KILO, R, STANDARD_TEMPERATURE,
+                                       rate_constant, reference_temperature)
 
 __all__ = ["LineFit", "weighted_line", "TemperatureGroup", "TwoStageLaw", "TwoStage",
            "two_stage", "order_differences", "ORDERS"]
@@ -81,7 +81,7 @@ class LineFit:
         return self.chi2 / self.dof if self.dof > 0 else math.nan
 
     def uncertainty(self, level=0.95):
-        """Covariance of (slope, intercept) and the interval quantile used by the two-stage analysis.
+        """Covariance of (slope, intercept) and the two-stage analysis's interval quantile.
 
         The weights' covariance (Xᵀ W X)⁻¹ is enlarged by χ²/(n - 2) when the
         points scatter more than their σ allow, never shrunk (the scale factor
@@ -173,11 +173,11 @@ class TemperatureGroup:
     """
 
     temperature: float
-    runs: tuple
-    values: dict
-    stderr: dict
+    runs: tuple[str, ...]
+    values: dict[str, float]
+    stderr: dict[str, float | None]
     success: bool
-    warnings: tuple = ()
+    warnings: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -207,11 +207,11 @@ class TwoStageLaw:
     k_stderr: np.ndarray
     arrhenius: LineFit
     eyring: LineFit | None
-    estimates: tuple
-    notes: tuple = ()
+    estimates: tuple[Estimate, ...]
+    notes: tuple[str, ...] = ()
 
     def estimate(self, name):
-        """The :class:`~kinfit.activation.Estimate` called `name`, or None."""
+        """The :class:`~kinfit.analysis.activation.Estimate` called `name`, or None."""
         return find_estimate(self.estimates, name)
 
     def to_dict(self):
@@ -245,10 +245,10 @@ class TwoStage:
     """
 
     orders: str
-    groups: tuple
-    laws: tuple
+    groups: tuple[TemperatureGroup, ...]
+    laws: tuple[TwoStageLaw, ...]
     level: float
-    order_warnings: tuple = ()
+    order_warnings: tuple[str, ...] = ()
 
     def law(self, constant):
         for law in self.laws:
@@ -300,7 +300,7 @@ def two_stage(experiment, mechanism, result=None, orders="free", starts=4, seed=
         fixed at the global fit's values, so only rate constants (and any
         per-run parameters) are fitted at each temperature.
     starts, seed : int
-        Passed to :func:`kinfit.fit.fit` for each group.
+        Passed to :func:`kinfit.estimation.least_squares.fit` for each group.
     level : float
         Coverage of the intervals (see :meth:`LineFit.uncertainty`).
 

@@ -389,7 +389,8 @@ def simulate_command(
 def _predict(mech, model, initial, overrides, times, units, temperature, temperature_unit,
              fit_file, draws, seed, out):
     """The prediction path of ``simulate``: temperature, fit basis, band and flags."""
-    from kinfit.analysis.prediction import FittedRange, PredictionBasis, load_basis, predict
+    from kinfit.analysis.prediction import predict
+    from kinfit.inputs.fit_basis import FittedRange, PredictionBasis, load_basis
     from kinfit.output.report import format_prediction, write_prediction
     from kinfit.core.units import check_unit, to_kelvin
 
@@ -615,7 +616,8 @@ def rank_command(
       --orders m_thiol=0,0.5,1,1.5,2 --orders m_acrylate=0,0.5,1,1.5,2 --out ranking
     """
     with _handled():
-        from kinfit.analysis.ranking import parse_order_grid, rank
+        from kinfit.analysis.lattice import parse_order_grid
+        from kinfit.analysis.ranking import rank
         from kinfit.inputs.experiment import load_experiment
         from kinfit.inputs.mechanism import load_mechanism
         from kinfit.output.report import format_ranking, write_ranking

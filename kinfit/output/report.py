@@ -351,7 +351,7 @@ def temperature_outputs(activations, two_stage=None, basis=None):
     import json
 
     from kinfit.figures.plots import plot_arrhenius, plot_eyring
-    from kinfit.analysis.prediction import basis_to_dict
+    from kinfit.inputs.fit_basis import basis_to_dict
     span = activations[0].temperature_range if activations else None
     data = {
         "activation": [a.to_dict() for a in activations],
@@ -689,7 +689,7 @@ def format_ranking(comparison, top=10, cautions=True):
         for w in comparison.warnings:
             out += textwrap.wrap(w, 88, initial_indent="  - ", subsequent_indent="    ",
                                  break_on_hyphens=False)
-    from kinfit.analysis.ranking import SOURCES
+    from kinfit.analysis.criteria import SOURCES
 
     out += ["", "Evidence scales"]
     for key in ("aicc", "bic"):

@@ -33,7 +33,9 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from kinfit.analysis.ranking import _warm_start, fit_candidates, order_lattice, rank  # noqa: E402
+from kinfit.analysis.candidates import fit_candidates, warm_start  # noqa: E402
+from kinfit.analysis.lattice import order_lattice  # noqa: E402
+from kinfit.analysis.ranking import rank  # noqa: E402
 from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.estimation.least_squares import fit  # noqa: E402
 from kinfit.inputs.mechanism import load_mechanism  # noqa: E402
@@ -59,7 +61,7 @@ def main():
     print(f"template (free orders, 8 starts): {time.perf_counter() - t:.2f} s, "
           f"χ² = {template.chi2:.6g}")
     lattice = order_lattice(mech, GRID)
-    warm = [replace(c, mechanism=_warm_start(c.mechanism, template, exp), template=None)
+    warm = [replace(c, mechanism=warm_start(c.mechanism, template, exp), template=None)
             for c in lattice]
 
     times = {1: [], 2: []}
