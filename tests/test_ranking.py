@@ -106,10 +106,13 @@ def test_small_ranking_contract(small_ranking):
     assert rows[0]["delta_aicc"] == 0.0
     assert rows[0]["fixed"] == {"m": 1.0, "n": 2.0}            # the true orders
     assert rows[0]["n_params"] == 1
-    # a candidate's parameter table is its fit's (the fields of result.json)
+    # a candidate's parameter table is its fit's (the fields of result.json), plus
+    # "fitted", the name earlier ranking.json files used for "vary"
     params = rows[0]["parameters"]
-    assert params == comparison.best.fit.to_dict()["parameters"]
-    assert params["k"]["vary"] is True and params["m"]["vary"] is False
+    own = comparison.best.fit.to_dict()["parameters"]
+    assert {n: {k: v for k, v in p.items() if k != "fitted"} for n, p in params.items()} == own
+    assert params["k"]["vary"] is params["k"]["fitted"] is True
+    assert params["m"]["vary"] is params["m"]["fitted"] is False
     assert params["m"]["value"] == 1.0 and params["m"]["stderr"] is None
     free = next(r for r in rows if r["fixed"] == {})
     assert free["n_params"] == 3 and free["template"] is None

@@ -98,9 +98,12 @@ class Ranked:
 
         The model, parameters, rate laws and fit warnings are the fit's own
         (:meth:`FitResult.to_dict`), so a candidate's parameter table has the
-        fields of ``result.json``.
+        fields of ``result.json`` plus ``fitted`` (the same as ``vary``; the
+        name earlier ``ranking.json`` files used, kept for their readers).
         """
         fit_ = self.fit.to_dict()
+        parameters = {name: {**entry, "fitted": entry["vary"]}
+                      for name, entry in fit_["parameters"].items()}
         return {
             "name": self.name,
             "model": fit_["model"],
@@ -123,7 +126,7 @@ class Ranked:
             "evidence_bic": self.evidence_bic,
             "success": fit_["success"],
             "rate_laws": fit_["rate_laws"],
-            "parameters": fit_["parameters"],
+            "parameters": parameters,
             "fit": {"starts": fit_["fit"]["starts"],
                     "starts_at_best": fit_["fit"]["starts_at_best"]},
             "warnings": fit_["warnings"],
