@@ -73,6 +73,7 @@ _EXPORTS = {
     "with_profile": "analysis.activation",
     "TwoStage": "analysis.two_stage",
     "predict": "analysis.prediction",
+    "two_stage": "analysis.two_stage",
     "Prediction": "analysis.prediction",
     "basis_from_fit": "analysis.prediction",
     "format_activation": "output.report",
