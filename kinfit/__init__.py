@@ -66,7 +66,7 @@ _EXPORTS = {
     "plot_arrhenius": "figures.plots",
     "plot_eyring": "figures.plots",
     "plot_prediction": "figures.plots",
-    "rate_constant": "inputs.temperature",
+    "rate_constant": "numerics.temperature_laws",
     "activation_parameters": "analysis.activation",
     "Activation": "analysis.activation",
     "with_posterior": "analysis.activation",

@@ -33,8 +33,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.temperature import (ARRHENIUS, ENERGY_UNIT, STANDARD_TEMPERATURE, linear_forms,
-                          ln_rate_form, reference_temperature)
+from kinfit.inputs.temperature import ARRHENIUS, ENERGY_UNIT, STANDARD_TEMPERATURE
+from kinfit.numerics.temperature_laws import linear_forms, ln_rate_form, reference_temperature
 from kinfit.core.units import conversion_factor, rate_constant_unit
 
 __all__ = ["Estimate", "RateAt", "Activation", "activation_parameters", "with_posterior",

@@ -36,7 +36,7 @@ from kinfit.inputs.experiment import Experiment, Run, Trace, initial_name
 from kinfit.core.errors import KinfitError
 from kinfit.numerics.problem import build_problem
 from kinfit.inputs.sources import decode
-from kinfit.inputs.temperature import ln_rate_form, reference_temperature
+from kinfit.numerics.temperature_laws import ln_rate_form, reference_temperature
 from kinfit.core.units import Units
 from kinfit.inputs.parameters import Role
 

@@ -29,8 +29,8 @@ from kinfit.analysis.activation import (UNITS, Estimate, find_estimate, interval
                          si_factor)
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
-from kinfit.inputs.temperature import (ENERGY_UNIT, H, K_B, KILO, R, STANDARD_TEMPERATURE,
-                          rate_constant, reference_temperature)
+from kinfit.inputs.temperature import ENERGY_UNIT, H, K_B, KILO, R, STANDARD_TEMPERATURE
+from kinfit.numerics.temperature_laws import rate_constant, reference_temperature
 from kinfit.inputs.parameters import Role
 
 __all__ = ["LineFit", "weighted_line", "TemperatureGroup", "TwoStageLaw", "TwoStage",

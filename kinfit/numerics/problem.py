@@ -37,7 +37,7 @@ from kinfit.numerics.spectra import build_signal_model
 from kinfit.numerics.compiled import KIND_INITIAL, KIND_LOG_K, KIND_ORDER
 from kinfit.inputs.mechanism import rates as rates_fn
 from kinfit.numerics.simulate import ATOL, MAX_RHS_CALLS, RTOL, integrate_flat, simulate_runs
-from kinfit.inputs.temperature import join_temperatures
+from kinfit.numerics.temperature_laws import join_temperatures
 
 __all__ = ["Problem", "build_problem", "residuals", "log_likelihood",
            "information_criteria", "FAILED_RESIDUAL"]
