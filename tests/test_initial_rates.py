@@ -14,7 +14,7 @@ from kinfit.core.errors import KinfitError
 from kinfit.analysis.initial_rates import (check_orders, initial_rates, initial_slope, polynomial_fit,
                                   rate_constant_at, regress_orders)
 from kinfit.inputs.mechanism import mechanism_from_text
-from kinfit.numerics.simulate import simulate
+from kinfit.numerics.integrate import simulate
 
 
 # ---------------------------------------------------------------- slopes

@@ -25,7 +25,7 @@ from pathlib import Path
 import numpy as np
 
 from kinfit.inputs.mechanism import mechanism_from_text
-from kinfit.numerics.simulate import simulate
+from kinfit.numerics.integrate import simulate
 from kinfit.inputs.temperature import rate_constant, reference_temperature
 from kinfit.core.units import to_kelvin
 

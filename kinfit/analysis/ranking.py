@@ -67,6 +67,7 @@ from kinfit.analysis.initial_rates import (DEFAULT_MAX_CONVERSION, AGREEMENT_Z, 
                             rate_constant_at)
 from kinfit.inputs.mechanism import with_fixed, with_start
 from kinfit.inputs.parameters import Role
+from kinfit.numerics.rate_system import compile_mechanism
 
 __all__ = ["Candidate", "Ranked", "NestedTest", "ModelAverage", "CrossCheck", "Comparison",
            "compare", "rank", "order_lattice", "parse_order_grid", "fit_candidates", "nests",
@@ -472,20 +473,21 @@ def _structure(mech):
     """
     names = mech.parameter_names
     params = mech.parameters
+    system = compile_mechanism(mech)
     free = [i for i, n in enumerate(names) if params[n].vary and params[n].role == Role.ORDER]
     base = np.array([params[n].value for n in names])
     base[free] = 0.0            # e0: the orders with every free order parameter at 0
-    _, e0 = mech.rate_arrays(base)
+    _, e0 = system.rate_arrays(base)
     columns = []
     for i in free:
         row = base.copy()
         row[i] += 1.0
-        columns.append((mech.rate_arrays(row)[1] - e0).ravel())
+        columns.append((system.rate_arrays(row)[1] - e0).ravel())
     e0 = e0.ravel()
     return {
         "species": mech.species,
         "held": frozenset(mech.held_constant),
-        "stoich": mech.stoichiometry,
+        "stoich": system.stoichiometry,
         "constants": tuple(law.constant for _, law, _ in mech.directions),
         "factors": np.array([law.factor for _, law, _ in mech.directions]),
         "e0": e0,
@@ -968,8 +970,9 @@ def _warm_start(mechanism, template_fit, experiment):
     row_fit = np.array([fitted.get(n, mechanism.parameters[n].value) for n in names])
     row_new = np.array([fitted.get(n, p.value) if p.vary else p.value
                         for n, p in mechanism.parameters.items()])
-    _, e_fit = mechanism.rate_arrays(row_fit)
-    _, e_new = mechanism.rate_arrays(row_new)
+    system = compile_mechanism(mechanism)
+    _, e_fit = system.rate_arrays(row_fit)
+    _, e_new = system.rate_arrays(row_new)
     shift = (e_fit[0] - e_new[0]) @ _typical_log_conc(experiment, mechanism.species)
     start = {n: v for n, v in zip(names, row_new)}
     done = set()
