@@ -216,23 +216,26 @@ def _powers(conc, orders, present, eps):
     Below `eps` a power with 0 <= e < 1 (of a species written in the rate
     law) is replaced by its chord eps^e · c/eps: the rate then goes to zero
     linearly as a reactant runs out instead of with an infinite slope, which
-    an integrator can follow. Negative orders use max(c, eps). Species not in
-    a rate law have e = 0 and factor 1.
+    an integrator can follow. Negative orders use max(c, eps), constant below
+    eps. Species not in a rate law have e = 0 and factor 1.
 
     Returns
     -------
     powers, slopes : ndarray [n_sys, n_directions, n_species]
+        The factors g and their exact derivatives ∂g/∂c, those of the
+        compiled kernels: the chord's slope eps^(e-1), zero on the floor of a
+        negative order, e c^(e-1) elsewhere (1 at c = 0 for e = 1).
     """
     c = np.maximum(conc, 0.0)[:, None, :]
     eps = np.broadcast_to(eps, (conc.shape[0],))[:, None, None]
     with np.errstate(divide="ignore", over="ignore", invalid="ignore"):
         low = c < eps
         chord = present & low & (orders >= 0.0) & (orders < 1.0)
+        floor = present & low & (orders < 0.0)
         base = np.where(present & (orders < 0.0), np.maximum(c, eps), c)
         powers = np.where(chord, eps ** orders * (c / eps), base ** orders)
         slopes = np.where(chord, eps ** (orders - 1.0),
-                          np.where(present, orders * np.maximum(base, eps) ** (orders - 1.0),
-                                   0.0))
+                          np.where(present & ~floor, orders * base ** (orders - 1.0), 0.0))
     return powers, slopes
 
 
