@@ -55,7 +55,8 @@ class RateSystem:
     stoichiometry : ndarray [n_species, n_directions]
         Net stoichiometric numbers ν of each direction (a reversible step has
         two, the reverse with the opposite sign); zero rows for held-constant
-        species.
+        species. The directions are those of
+        :attr:`~kinfit.inputs.mechanism.Mechanism.directions`, in order.
     factor : ndarray [n_directions]
         Numeric factor of each direction's rate law.
     constant_index : ndarray [n_directions] of int
@@ -153,21 +154,17 @@ def compile_mechanism(mechanism):
         values, bounds and flags (:func:`~kinfit.inputs.mechanism.with_fixed`,
         :func:`~kinfit.inputs.mechanism.with_start`) share one system.
     """
-    key = (mechanism.species, mechanism.held_constant,
-           tuple((s.reaction, s.forward, s.reverse) for s in mechanism.steps),
+    directions = tuple((i, mechanism.steps[i].reaction, law, sign)
+                       for i, law, sign in mechanism.directions)
+    key = (mechanism.species, mechanism.held_constant, len(mechanism.steps), directions,
            tuple(mechanism.parameters))
     return _compiled(key)
 
 
 @lru_cache(maxsize=256)
 def _compiled(key):
-    species, held, steps, names = key
+    species, held, n_steps, directions, names = key
     index = {s: i for i, s in enumerate(species)}
-    directions = []
-    for i, (_, forward, reverse) in enumerate(steps):
-        directions.append((i, forward, 1.0))
-        if reverse is not None:
-            directions.append((i, reverse, -1.0))
     n_dir, n_species, n_params = len(directions), len(species), len(names)
     stoich = np.zeros((n_species, n_dir))
     factor = np.empty(n_dir)
@@ -175,8 +172,7 @@ def _compiled(key):
     order_const = np.zeros((n_dir, n_species))
     order_coef = np.zeros((n_dir, n_species, n_params))
     present = np.zeros((n_dir, n_species), dtype=bool)
-    for j, (i, law, sign) in enumerate(directions):
-        reaction = steps[i][0]
+    for j, (_, reaction, law, sign) in enumerate(directions):
         for s, nu in reaction.net().items():
             if s not in held:
                 stoich[index[s], j] = sign * nu
@@ -193,12 +189,12 @@ def _compiled(key):
             for pname, c in affine.coef:
                 order_coef[j, index[s], names.index(pname)] = c
     # extents of reaction: c = c0 + N z with one extent per step, dz/dt = M r
-    net = np.zeros((n_species, len(steps)))
-    dirmap = np.zeros((len(steps), n_dir))
-    for j, (i, law, sign) in enumerate(directions):
+    net = np.zeros((n_species, n_steps))
+    dirmap = np.zeros((n_steps, n_dir))
+    for j, (i, _, _, sign) in enumerate(directions):
         net[:, i] = sign * stoich[:, j]
         dirmap[i, j] = sign
-    extents = (net, dirmap) if len(steps) < n_species else None
+    extents = (net, dirmap) if n_steps < n_species else None
     arrays = [stoich, factor, constant_index, order_const, order_coef, present]
     arrays += list(extents or ())
     for arr in arrays:
