@@ -211,7 +211,7 @@ def synthetic_power_law(folder, seed, truth=(0.02, 1.0, 2.0), relative=0.01,
 
     from kinfit.inputs.experiment import load_experiment
     from kinfit.inputs.mechanism import load_mechanism
-    from kinfit.numerics.simulate import simulate
+    from kinfit.numerics.integrate import simulate
 
     k, m, n = truth
     folder = Path(folder)

@@ -10,7 +10,7 @@ import scipy.constants as sc
 
 from kinfit.analysis.activation import (activation_parameters, si_factor, with_posterior, with_profile)
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.temperature import rate_constant
+from kinfit.numerics.temperature_laws import rate_constant
 from kinfit.core.units import Units
 
 

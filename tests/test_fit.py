@@ -13,7 +13,7 @@ from kinfit.inputs.experiment import load_experiment
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
-from kinfit.numerics.simulate import simulate
+from kinfit.numerics.integrate import simulate
 
 # NIST/ITL Statistical Reference Datasets, Nonlinear Least Squares Regression,
 # dataset BoxBOD (Box et al. 1978), "higher level of difficulty".

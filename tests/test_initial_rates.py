@@ -15,7 +15,7 @@ from kinfit.core.errors import KinfitError
 from kinfit.analysis.initial_rates import (check_orders, initial_rates, rate_constant_at,
                                            regress_orders)
 from kinfit.inputs.mechanism import mechanism_from_text
-from kinfit.numerics.simulate import simulate
+from kinfit.numerics.integrate import simulate
 
 
 # ------------------------------------------------------------ regression

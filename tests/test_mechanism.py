@@ -1,4 +1,4 @@
-"""Model files: loading, checks, stoichiometry and the rate equations."""
+"""Model files: loading, checks, steps and directions, rate-law text, copies."""
 
 from __future__ import annotations
 
@@ -9,9 +9,8 @@ import pytest
 
 from conftest import MODELS
 from kinfit.core.errors import KinfitError, KinfitWarning
-from kinfit.inputs.mechanism import (format_rate_law, jacobian, load_mechanism, mechanism_from_text,
-                              rhs)
-from kinfit.numerics.simulate import simulate
+from kinfit.inputs.mechanism import format_rate_law, load_mechanism, mechanism_from_text
+from kinfit.numerics.integrate import simulate
 
 
 @pytest.mark.parametrize("path", sorted(MODELS.glob("*.toml")), ids=lambda p: p.name)
@@ -31,38 +30,14 @@ def test_at_least_the_required_models_are_shipped():
             "autocatalytic"} <= names
 
 
-def test_species_roles_and_stoichiometry():
+def test_species_and_roles():
     mech = load_mechanism(MODELS / "power_law_two.toml")
     assert mech.species == ("A", "B", "P")
     assert mech.rate_constants == ("k",)
     assert mech.orders == ("m", "n")
-    np.testing.assert_array_equal(mech.stoichiometry, [[-1], [-1], [1]])
 
 
-def test_iupac_convention_two_a():
-    # IUPAC Gold Book, "rate of reaction" (from memory): d[X]/dt = nu_X v.
-    # For 2 A -> P with v = k[A]^2: d[A]/dt = -2 k [A]^2, d[P]/dt = +k [A]^2.
-    mech = load_mechanism(MODELS / "second_order.toml")
-    k, orders = mech.rate_arrays([0.5])
-    d = rhs(np.array([[0.4, 0.0]]), k, orders, mech.present, 1e-9, mech.stoichiometry)
-    np.testing.assert_allclose(d, [[-2 * 0.5 * 0.16, 0.5 * 0.16]])
-
-
-def test_stoichiometry_does_not_set_orders():
-    # A + 2 B -> P with rate k [A] [B]: B is used twice as fast, order in B stays 1.
-    mech = mechanism_from_text("""
-        [[steps]]
-        reaction = "A + 2 B -> P"
-        rate = "k * [A] * [B]"
-        [parameters]
-        k = 1.0
-    """)
-    k, orders = mech.rate_arrays([1.0])
-    d = rhs(np.array([[0.5, 2.0, 0.0]]), k, orders, mech.present, 1e-9, mech.stoichiometry)
-    np.testing.assert_allclose(d, [[-1.0, -2.0, 1.0]])
-
-
-def test_reversible_and_held_constant():
+def test_reversible_step_has_two_directions_and_held_species_come_last():
     mech = mechanism_from_text("""
         held_constant = ["H"]
         [[steps]]
@@ -74,35 +49,9 @@ def test_reversible_and_held_constant():
         kr = 1.0
     """)
     assert mech.species == ("A", "B", "H")
-    assert len(mech.directions) == 2
-    np.testing.assert_array_equal(mech.stoichiometry, [[-1, 1], [1, -1], [0, 0]])
-    traj = simulate(mech, {"A": 1.0, "H": 0.5}, times=[0.0, 5.0])
-    assert traj["H"][-1] == 0.5
-
-
-def test_analytic_jacobian_matches_finite_differences():
-    # Central differences as an independent check (common practice).
-    mech = load_mechanism(MODELS / "pre_equilibrium.toml")
-    values = np.array([mech.values()[n] for n in mech.parameter_names])
-    k, orders = mech.rate_arrays(values)
-    c = np.array([[0.7, 0.4, 0.05, 0.2]])
-    jac = jacobian(c, k, orders, mech.present, 1e-12, mech.stoichiometry)[0]
-    h = 1e-6
-    fd = np.empty((4, 4))
-    for j in range(4):
-        up, down = c.copy(), c.copy()
-        up[0, j] += h
-        down[0, j] -= h
-        fd[:, j] = (rhs(up, k, orders, mech.present, 1e-12, mech.stoichiometry)
-                    - rhs(down, k, orders, mech.present, 1e-12, mech.stoichiometry))[0] / (2 * h)
-    np.testing.assert_allclose(jac, fd, rtol=1e-6, atol=1e-9)
-
-
-def test_fractional_order_jacobian_is_finite_at_zero():
-    mech = load_mechanism(MODELS / "power_law_one.toml")
-    k, orders = mech.rate_arrays([0.1, 0.5])
-    jac = jacobian(np.array([[0.0, 1.0]]), k, orders, mech.present, 1e-9, mech.stoichiometry)
-    assert np.isfinite(jac).all()
+    step = mech.steps[0]
+    assert mech.directions == ((0, step.forward, 1.0), (0, step.reverse, -1.0))
+    assert [law.constant for _, law, _ in mech.directions] == ["kf", "kr"]
 
 
 def test_format_rate_law_shows_fitted_orders_with_decimals():
@@ -226,9 +175,6 @@ def test_with_fixed_and_with_start():
     fixed = with_fixed(free, {"m": 1.5}, name="m fixed")
     assert fixed.name == "m fixed" and fixed.parameters["m"].value == 1.5
     assert not fixed.parameters["m"].vary and free.parameters["m"].vary    # a copy
-    # the compiled arrays are shared: fixing changes values, not the layout
-    k, orders = fixed.rate_arrays([0.5, 1.5, 2.0])
-    assert orders[0, 0, fixed.species.index("A")] == 1.5
     with pytest.raises(KinfitError, match="cannot fix m at 3.5; the model allows m from 0 "
                                           "to 3"):
         with_fixed(free, {"m": 3.5})
@@ -239,3 +185,14 @@ def test_with_fixed_and_with_start():
     assert started.parameters["m"].value == 1.5          # fixed: left alone
     assert started.parameters["n"].value == 3.0          # clipped into its bounds
     assert with_start(free, {"k": -1.0}).parameters["k"].value == 0.5   # log scale: kept
+
+
+def test_a_mechanism_is_a_specification_without_arrays():
+    # the arrays of the rate equations are built by kinfit.numerics.rate_system
+    from dataclasses import fields
+
+    mech = load_mechanism(MODELS / "pre_equilibrium.toml")
+    assert [f.name for f in fields(mech)] == ["name", "species", "held_constant", "steps",
+                                               "parameters", "source", "description",
+                                               "temperature"]
+    assert not any(isinstance(getattr(mech, f.name), np.ndarray) for f in fields(mech))

@@ -11,7 +11,7 @@ from kinfit.estimation.least_squares import fit
 from kinfit.inputs.mechanism import load_mechanism
 from kinfit.figures.plots import (plot_bands, plot_corner, plot_initial_rates, plot_profiles,
                           plot_residuals, plot_traces, plot_trajectory, plot_weights)
-from kinfit.numerics.simulate import simulate
+from kinfit.numerics.integrate import simulate
 from kinfit.core.units import Units
 
 

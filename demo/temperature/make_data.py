@@ -25,8 +25,8 @@ from pathlib import Path
 import numpy as np
 
 from kinfit.inputs.mechanism import mechanism_from_text
-from kinfit.numerics.simulate import simulate
-from kinfit.inputs.temperature import rate_constant, reference_temperature
+from kinfit.numerics.integrate import simulate
+from kinfit.numerics.temperature_laws import rate_constant, reference_temperature
 from kinfit.core.units import to_kelvin
 
 SEED = 20261207

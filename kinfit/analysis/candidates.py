@@ -23,6 +23,7 @@ from kinfit.core.defaults import DEFAULT_STARTS
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.mechanism import with_start
+from kinfit.numerics.rate_system import compile_mechanism
 
 if TYPE_CHECKING:
     from kinfit.inputs.mechanism import Mechanism
@@ -118,8 +119,9 @@ def warm_start(mechanism, template_fit, experiment):
     row_fit = np.array([fitted.get(n, mechanism.parameters[n].value) for n in names])
     row_new = np.array([fitted.get(n, p.value) if p.vary else p.value
                         for n, p in mechanism.parameters.items()])
-    _, e_fit = mechanism.rate_arrays(row_fit)
-    _, e_new = mechanism.rate_arrays(row_new)
+    system = compile_mechanism(mechanism)
+    _, e_fit = system.rate_arrays(row_fit)
+    _, e_new = system.rate_arrays(row_new)
     shift = (e_fit[0] - e_new[0]) @ _typical_log_conc(experiment, mechanism.species)
     start = {n: v for n, v in zip(names, row_new)}
     done = set()

@@ -18,6 +18,7 @@ import numpy as np
 
 from kinfit.analysis.criteria import f_test, likelihood_ratio_test
 from kinfit.inputs.parameters import Role
+from kinfit.numerics.rate_system import compile_mechanism
 
 __all__ = ["NestedTest", "structure", "nests", "on_boundary", "nested_tests"]
 
@@ -76,17 +77,18 @@ def structure(mech):
     free = [i for i, n in enumerate(names) if params[n].vary and params[n].role == Role.ORDER]
     base = np.array([params[n].value for n in names])
     base[free] = 0.0            # e0: the orders with every free order parameter at 0
-    _, e0 = mech.rate_arrays(base)
+    system = compile_mechanism(mech)
+    _, e0 = system.rate_arrays(base)
     columns = []
     for i in free:
         row = base.copy()
         row[i] += 1.0
-        columns.append((mech.rate_arrays(row)[1] - e0).ravel())
+        columns.append((system.rate_arrays(row)[1] - e0).ravel())
     e0 = e0.ravel()
     return {
         "species": mech.species,
         "held": frozenset(mech.held_constant),
-        "stoich": mech.stoichiometry,
+        "stoich": system.stoichiometry,
         "constants": tuple(law.constant for _, law, _ in mech.directions),
         "factors": np.array([law.factor for _, law, _ in mech.directions]),
         "e0": e0,

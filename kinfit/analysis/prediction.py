@@ -37,7 +37,7 @@ from kinfit.core.errors import KinfitError
 from kinfit.inputs.experiment import Experiment, Run, Trace, initial_name
 from kinfit.inputs.fit_basis import FittedRange, PredictionBasis
 from kinfit.inputs.parameters import Role
-from kinfit.inputs.temperature import ln_rate_form, reference_temperature
+from kinfit.numerics.temperature_laws import ln_rate_form, reference_temperature
 from kinfit.numerics.problem import build_problem
 
 if TYPE_CHECKING:

@@ -29,9 +29,9 @@ from kinfit.analysis.activation import (UNITS, Estimate, find_estimate, interval
                                         run_temperatures, si_factor)
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
+from kinfit.inputs.temperature import ENERGY_UNIT, H, K_B, KILO, R, STANDARD_TEMPERATURE
+from kinfit.numerics.temperature_laws import rate_constant, reference_temperature
 from kinfit.inputs.parameters import Role
-from kinfit.inputs.temperature import (ENERGY_UNIT, H, K_B, KILO, R, STANDARD_TEMPERATURE,
-                                       rate_constant, reference_temperature)
 
 __all__ = ["LineFit", "weighted_line", "TemperatureGroup", "TwoStageLaw", "TwoStage",
            "two_stage", "order_differences", "ORDERS"]

@@ -361,7 +361,7 @@ def simulate_command(
 
         from kinfit.inputs.mechanism import load_mechanism
         from kinfit.output.report import write_simulation
-        from kinfit.numerics.simulate import simulate
+        from kinfit.numerics.integrate import simulate
         from kinfit.core.units import Units, check_unit
 
         if not until > 0:

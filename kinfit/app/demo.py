@@ -99,7 +99,7 @@ EXPERIMENT_TEXT = _experiment_text()
 
 def _traces_csv():
     from kinfit.inputs.mechanism import mechanism_from_text
-    from kinfit.numerics.simulate import simulate
+    from kinfit.numerics.integrate import simulate
 
     mech = mechanism_from_text(MODEL_TEXT, "demo model")
     rng = np.random.default_rng(SEED)

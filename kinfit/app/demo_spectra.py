@@ -140,7 +140,7 @@ def _spectra_experiment():
 
 def _simulate(times, name):
     from kinfit.inputs.mechanism import mechanism_from_text
-    from kinfit.numerics.simulate import simulate
+    from kinfit.numerics.integrate import simulate
 
     mech = mechanism_from_text(MODEL_TEXT, "demo model")
     traj = simulate(mech, {"precursor": PRECURSOR, "reagent": REAGENT[name]}, TRUTH, times)

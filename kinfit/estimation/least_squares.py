@@ -38,7 +38,7 @@ from kinfit.inputs.mechanism import format_rate_law
 from kinfit.estimation.linear_unknowns import resolve_signals
 from kinfit.estimation.residual_checks import check_residuals
 from kinfit.numerics.problem import FAILED_RESIDUAL, build_problem, information_criteria
-from kinfit.numerics.simulate import Trajectory
+from kinfit.numerics.integrate import Trajectory, describe_method
 from kinfit.inputs.temperature import ENERGY_UNIT
 from kinfit.inputs.parameters import Role
 
@@ -622,7 +622,9 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
         curves=_curves(problem, values_row), success=success, message=message,
         warnings=tuple(warnings), starts=n_starts, starts_at_best=at_best,
         n_evaluations=evaluator.evaluations, n_integrations=evaluator.integrations,
-        n_failed=evaluator.failed, method=_integrator_text(problem.method, evaluator),
+        n_failed=evaluator.failed,
+        method=describe_method(problem.method, evaluator.n_stiff, evaluator.n_implicit,
+                               tally=True),
         at_bounds=at_bounds,
         bounds={p.name: (p.min, p.max, p.vary) for p in problem.parameters}, signals=signals,
         residual_checks=tuple(check_residuals(exp, res)))
@@ -638,19 +640,6 @@ def _kaufman_jacobian(problem, layout, u):
     plain = replace(problem, signal=problem.signal.kaufman())
     jac = plain.residuals_jacobian(layout.to_values(u))[1]
     return jac[:, layout.free] * layout.natural_slope(u)[None, :]
-
-
-def _integrator_text(method, evaluator):
-    """Which integrator did the work, in words."""
-    if method not in ("auto", "compiled"):
-        return method
-    text = "compiled Dormand-Prince 5(4)"
-    if evaluator.n_stiff:
-        text += (f"; compiled Rosenbrock 4(3) for {evaluator.n_stiff} stiff run "
-                 f"evaluation(s)")
-    if evaluator.n_implicit:
-        text += f"; LSODA for {evaluator.n_implicit} run evaluation(s)"
-    return text
 
 
 def _covariance(jac, slope, scale, names):
@@ -676,8 +665,6 @@ def _curves(problem, values_row, n=200):
                                        problem.observation.run_times[r]]))
              for r, run in enumerate(problem.experiment.runs)]
     conc, ok, info = problem.simulate(values_row, times=grids)
-    method = problem.method if problem.method not in ("auto", "compiled") else (
-        "LSODA" if info.n_implicit else "compiled Rosenbrock 4(3)" if info.n_stiff
-        else "compiled Dormand-Prince 5(4)")
+    method = describe_method(problem.method, info.n_stiff, info.n_implicit)
     return tuple(Trajectory(g, c[0], problem.mechanism.species, bool(ok[0]), info.message,
                             method) for g, c in zip(grids, conc))

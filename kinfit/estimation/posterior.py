@@ -528,7 +528,7 @@ def _fingerprint(space, settings):
                 space.base, space.log10.astype(float)):
         h.update(np.ascontiguousarray(arr, dtype=float).tobytes())
     h.update(json.dumps([space.labels, [p.to_dict() for p in space.priors], space.noise,
-                         problem.mechanism.stoichiometry.tolist(),
+                         problem.system.stoichiometry.tolist(),
                          [str(d[1]) for d in problem.mechanism.directions],
                          settings.walkers, settings.seed, settings.moves],
                         default=str).encode())

@@ -200,7 +200,7 @@ def _temperature_grid(act, predicted):
 
 def _activation_panel(ax, act, stage, predicted, eyring):
     """One Arrhenius (ln k) or Eyring (ln k/T) panel; returns False if not drawable."""
-    from kinfit.inputs.temperature import ln_rate_form
+    from kinfit.numerics.temperature_laws import ln_rate_form
 
     if eyring and act.si_factor is None:
         ax.text(0.5, 0.5, f"no Eyring plot for {act.constant}:\nits unit cannot be "

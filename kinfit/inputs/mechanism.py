@@ -1,23 +1,15 @@
-"""Mechanisms: species, steps, power-law rate laws and the rate equations.
+"""Mechanisms: species, steps, power-law rate laws and their parameters.
 
 A model file (TOML) lists steps. Each step has a reaction in ordinary
-notation and a rate law; the rate law is parsed by :mod:`kinfit.expressions`
-(never evaluated as code). From the steps kinfit builds the stoichiometry
-matrix S [n_species, n_directions] and, for each direction of each step, the
-rate r_j = factor_j k_j Π_s max([s], 0)^e_js. The rate equations follow the
-IUPAC rate of reaction:
+notation and a rate law; the rate law is parsed by
+:mod:`kinfit.inputs.expressions` (never evaluated as code). This module reads
+and checks the file into a :class:`Mechanism`, a frozen specification, and
+formats rate laws for reports.
 
-    d[X]/dt = Σ_j ν_Xj r_j
-
-so for ``2 A -> P`` with rate ``k [A]^2``, d[A]/dt = −2 k [A]^2 (IUPAC Gold
-Book, "rate of reaction"). Stoichiometric coefficients never set orders.
-
-Concentrations are clipped at zero inside a power, so a fractional order
-never gives NaN when a concentration touches or crosses zero: the rate of a
-step whose reactant is used up is zero. Below 1e-9 of a run's largest
-starting concentration a power with order between 0 and 1 is linearised
-(see :func:`rates`), so that a reactant of fractional or zero order runs out
-smoothly enough to integrate.
+The rate equations the specification stands for -- the stoichiometry matrix,
+r_j = factor_j k_j Π_s max([s], 0)^e_js for each direction of each step and
+d[X]/dt = Σ_j ν_Xj r_j -- are built from it by
+:func:`kinfit.numerics.rate_system.compile_mechanism`.
 """
 
 from __future__ import annotations
@@ -25,21 +17,19 @@ from __future__ import annotations
 import keyword
 import math
 import warnings
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from pathlib import Path
-
-import numpy as np
 
 from kinfit.core.errors import KinfitError, KinfitWarning, where
 from kinfit.inputs.expressions import (PARAMETER_NAME, SPECIES_NAME, ParseError, PowerLaw, Reaction,
                           parse_reaction, to_power_law)
 from kinfit.inputs.priors import parse_prior
 from kinfit.inputs.sources import find_line, load_toml
-from kinfit.inputs.temperature import check_roles, parse_temperature
+from kinfit.inputs.temperature import TemperatureSpec, check_roles, parse_temperature
 from kinfit.inputs.parameters import Parameter, Role
 
 __all__ = ["Parameter", "Step", "Mechanism", "load_mechanism", "mechanism_from_text",
-           "rates", "rhs", "jacobian", "format_rate_law", "with_fixed", "with_start"]
+           "format_rate_law", "with_fixed", "with_start"]
 
 
 _MODEL_KEYS = {"name", "description", "held_constant", "steps", "parameters", "temperature"}
@@ -73,7 +63,7 @@ class Step:
 
 @dataclass(frozen=True)
 class Mechanism:
-    """A parsed reaction mechanism, ready to integrate.
+    """A parsed reaction mechanism: the specification of its rate equations.
 
     Attributes
     ----------
@@ -89,15 +79,11 @@ class Mechanism:
     source : str
         File the mechanism came from (``"<text>"`` if none).
     temperature : TemperatureSpec or None
-        Rate constants that depend on temperature (see :mod:`kinfit.temperature`).
-    stoichiometry : ndarray [n_species, n_directions]
-        Net stoichiometric numbers; zero rows for held-constant species.
-    directions : tuple of (step index, PowerLaw, sign)
-        One entry per column of `stoichiometry`.
-    extents : (N [n_species, n_steps], M [n_steps, n_directions]) or None
-        When the mechanism has fewer steps than species: the concentrations as
-        c = c0 + N z in one extent of reaction z per step, dz/dt = M r, which
-        the compiled integrator uses to integrate fewer equations.
+        Rate constants that depend on temperature (see
+        :mod:`kinfit.inputs.temperature`).
+
+    The arrays of the rate equations are not part of the specification:
+    :func:`kinfit.numerics.rate_system.compile_mechanism` builds them.
     """
 
     name: str
@@ -107,15 +93,7 @@ class Mechanism:
     parameters: dict[str, Parameter]
     source: str = "<text>"
     description: str = ""
-    temperature: object = None
-    stoichiometry: np.ndarray = field(default=None, repr=False, compare=False)
-    directions: tuple = field(default=(), repr=False, compare=False)
-    _factor: np.ndarray = field(default=None, repr=False, compare=False)
-    _constant_index: np.ndarray = field(default=None, repr=False, compare=False)
-    _order_const: np.ndarray = field(default=None, repr=False, compare=False)
-    _order_coef: np.ndarray = field(default=None, repr=False, compare=False)
-    present: np.ndarray = field(default=None, repr=False, compare=False)
-    extents: tuple | None = field(default=None, repr=False, compare=False)
+    temperature: TemperatureSpec | None = None
 
     @property
     def parameter_names(self):
@@ -124,6 +102,23 @@ class Mechanism:
     @property
     def n_species(self):
         return len(self.species)
+
+    @property
+    def directions(self):
+        """Each direction of each step: a reversible step has two.
+
+        Returns
+        -------
+        tuple of (step index, PowerLaw, sign)
+            Forward directions have sign +1.0, reverse ones -1.0; the order
+            of the direction axis of the rate equations.
+        """
+        out = []
+        for i, step in enumerate(self.steps):
+            out.append((i, step.forward, 1.0))
+            if step.reverse is not None:
+                out.append((i, step.reverse, -1.0))
+        return tuple(out)
 
     @property
     def rate_constants(self):
@@ -142,25 +137,6 @@ class Mechanism:
                                   f"has {', '.join(out) or 'none'}")
             out[name] = float(value)
         return out
-
-    def rate_arrays(self, values):
-        """Per-direction rate constants and orders for one or many parameter sets.
-
-        Parameters
-        ----------
-        values : ndarray [n_sets, n_params] or [n_params]
-            Parameter values in the order of :attr:`parameter_names`.
-
-        Returns
-        -------
-        k : ndarray [n_sets, n_directions]
-            ``factor * k`` of each direction.
-        orders : ndarray [n_sets, n_directions, n_species]
-        """
-        values = np.atleast_2d(np.asarray(values, dtype=float))
-        k = self._factor * values[:, self._constant_index]
-        orders = self._order_const + np.einsum("np,dsp->nds", values, self._order_coef)
-        return k, orders
 
     def overall_orders(self, values):
         """Overall order (sum of orders) of each rate constant's rate law.
@@ -184,8 +160,8 @@ def with_fixed(mechanism, values, name=None):
     """A copy of `mechanism` with the named parameters fixed at the given values.
 
     Used to build candidates such as "the free-order model with m fixed at 1".
-    The compiled arrays are kept: fixing a parameter changes its value and
-    ``vary`` flag, not the layout.
+    Fixing a parameter changes its value and ``vary`` flag, not the structure,
+    so the copy shares the original's compiled rate system.
 
     Parameters
     ----------
@@ -269,96 +245,6 @@ def format_rate_law(law, values=None, digits=3):
             exponent = f"({exponent})" if " " in exponent else exponent
         parts.append(f"[{species}]" if exponent == "1" else f"[{species}]^{exponent}")
     return " ".join(parts)
-
-
-# ------------------------------------------------------------- rate equations
-
-def _powers(conc, orders, present, eps):
-    """Factors max(c, 0)^e of every direction and species, and their slopes.
-
-    Below `eps` a power with 0 <= e < 1 (of a species written in the rate
-    law) is replaced by its chord eps^e · c/eps: the rate then goes to zero
-    linearly as a reactant runs out instead of with an infinite slope, which
-    an integrator can follow. Negative orders use max(c, eps). Species not in
-    a rate law have e = 0 and factor 1.
-
-    Returns
-    -------
-    powers, slopes : ndarray [n_sys, n_directions, n_species]
-    """
-    c = np.maximum(conc, 0.0)[:, None, :]
-    eps = np.broadcast_to(eps, (conc.shape[0],))[:, None, None]
-    with np.errstate(divide="ignore", over="ignore", invalid="ignore"):
-        low = c < eps
-        chord = present & low & (orders >= 0.0) & (orders < 1.0)
-        base = np.where(present & (orders < 0.0), np.maximum(c, eps), c)
-        powers = np.where(chord, eps ** orders * (c / eps), base ** orders)
-        slopes = np.where(chord, eps ** (orders - 1.0),
-                          np.where(present, orders * np.maximum(base, eps) ** (orders - 1.0),
-                                   0.0))
-    return powers, slopes
-
-
-def rates(conc, k, orders, present, eps):
-    """Rates of all directions.
-
-    Parameters
-    ----------
-    conc : ndarray [n_sys, n_species]
-    k : ndarray [n_sys, n_directions]
-    orders : ndarray [n_sys, n_directions, n_species]
-    present : ndarray [n_directions, n_species] of bool
-        Whether each species is written in each direction's rate law or is
-        consumed by that direction (a zero-order reactant still stops the
-        step when it runs out).
-    eps : float or ndarray [n_sys]
-        Concentration below which a power of order 0 <= e < 1 is linearised
-        (see :func:`_powers`); kinfit uses 1e-9 times a run's largest starting
-        concentration.
-
-    Returns
-    -------
-    ndarray [n_sys, n_directions]
-        r_j = k_j Π_s max(c_s, 0)^e_js.
-    """
-    powers, _ = _powers(conc, orders, present, eps)
-    return k * np.prod(powers, axis=-1)
-
-
-def rhs(conc, k, orders, present, eps, stoichiometry):
-    """Right-hand side d[X]/dt = S r of the rate equations.
-
-    Parameters
-    ----------
-    conc, k, orders, present, eps : see :func:`rates`
-    stoichiometry : ndarray [n_species, n_directions]
-
-    Returns
-    -------
-    ndarray [n_sys, n_species]
-    """
-    return rates(conc, k, orders, present, eps) @ stoichiometry.T
-
-
-def jacobian(conc, k, orders, present, eps, stoichiometry):
-    """Analytic Jacobian ∂(d[X]/dt)/∂[Y] of the rate equations.
-
-    Parameters
-    ----------
-    conc, k, orders, present, eps, stoichiometry : see :func:`rhs`
-
-    Returns
-    -------
-    ndarray [n_sys, n_species, n_species]
-    """
-    powers, slopes = _powers(conc, orders, present, eps)
-    drate = np.empty(powers.shape)
-    with np.errstate(over="ignore", invalid="ignore"):
-        for s in range(conc.shape[1]):
-            factors = powers.copy()
-            factors[..., s] = slopes[..., s]
-            drate[..., s] = k * np.prod(factors, axis=-1)
-    return np.einsum("sd,ndt->nst", stoichiometry, drate)
 
 
 # ------------------------------------------------------------------- loading
@@ -450,9 +336,9 @@ def _build(table, text, source, default_name):
         temperature = parse_temperature(table["temperature"], text, source)
     parameters = _parse_parameters(table.get("parameters", {}), steps, text, source,
                                    temperature)
-    return _compile(Mechanism(name=name, species=tuple(species), held_constant=tuple(held),
-                              steps=steps, parameters=parameters, source=source,
-                              description=description, temperature=temperature))
+    return Mechanism(name=name, species=tuple(species), held_constant=tuple(held),
+                     steps=steps, parameters=parameters, source=source,
+                     description=description, temperature=temperature)
 
 
 def _parse_step(index, raw, text, source):
@@ -608,52 +494,3 @@ def _parse_parameter(name, spec, role, loc):
                           f"typing error?")
     prior = parse_prior(spec["prior"], loc) if "prior" in spec else None
     return Parameter(name, value, lo, hi, vary, role, prior)
-
-
-def _compile(mech):
-    """Fill in the stoichiometry and per-direction arrays of `mech`."""
-    names = list(mech.parameters)
-    index = {s: i for i, s in enumerate(mech.species)}
-    directions = []
-    for i, step in enumerate(mech.steps):
-        directions.append((i, step.forward, 1.0))
-        if step.reverse is not None:
-            directions.append((i, step.reverse, -1.0))
-    n_dir, n_species, n_params = len(directions), len(mech.species), len(names)
-    stoich = np.zeros((n_species, n_dir))
-    factor = np.empty(n_dir)
-    constant_index = np.empty(n_dir, dtype=int)
-    order_const = np.zeros((n_dir, n_species))
-    order_coef = np.zeros((n_dir, n_species, n_params))
-    present = np.zeros((n_dir, n_species), dtype=bool)
-    for j, (i, law, sign) in enumerate(directions):
-        for s, nu in mech.steps[i].reaction.net().items():
-            if s not in mech.held_constant:
-                stoich[index[s], j] = sign * nu
-        # a direction cannot consume what is not there: its reactants gate it
-        # even when their order is zero (see _powers)
-        consumed = mech.steps[i].reaction.reactants if sign > 0 else \
-            mech.steps[i].reaction.products
-        for s, _ in consumed:
-            present[j, index[s]] = s not in mech.held_constant
-        factor[j] = law.factor
-        constant_index[j] = names.index(law.constant)
-        for s, affine in law.orders:
-            present[j, index[s]] = True
-            order_const[j, index[s]] = affine.const
-            for pname, c in affine.coef:
-                order_coef[j, index[s], names.index(pname)] = c
-    # extents of reaction: c = c0 + N z with one extent per step, dz/dt = M r
-    net = np.zeros((n_species, len(mech.steps)))
-    dirmap = np.zeros((len(mech.steps), n_dir))
-    for j, (i, law, sign) in enumerate(directions):
-        net[:, i] = sign * stoich[:, j]
-        dirmap[i, j] = sign
-    extents = (net, dirmap) if len(mech.steps) < n_species else None
-    fields = dict(stoichiometry=stoich, directions=tuple(directions), _factor=factor,
-                  extents=extents,
-                  _constant_index=constant_index, _order_const=order_const,
-                  _order_coef=order_coef, present=present)
-    for key, value in fields.items():
-        object.__setattr__(mech, key, value)
-    return mech

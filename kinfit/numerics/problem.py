@@ -34,10 +34,11 @@ import numpy as np
 from kinfit.core.errors import KinfitError
 from kinfit.numerics.observation import build_observation
 from kinfit.numerics.signal_build import build_signal_model
-from kinfit.numerics.compiled import KIND_INITIAL, KIND_LOG_K, KIND_ORDER
-from kinfit.inputs.mechanism import rates as rates_fn
-from kinfit.numerics.simulate import ATOL, MAX_RHS_CALLS, RTOL, integrate_flat, simulate_runs
-from kinfit.inputs.temperature import join_temperatures
+from kinfit.numerics.integrate import integrate_flat, simulate_runs
+from kinfit.numerics.integrators import (ATOL, KIND_INITIAL, KIND_LOG_K, KIND_ORDER, MAX_RHS_CALLS,
+                                         RTOL)
+from kinfit.numerics.rate_system import RateSystem, compile_mechanism
+from kinfit.numerics.temperature_laws import join_temperatures
 
 __all__ = ["Problem", "build_problem", "residuals", "log_likelihood",
            "information_criteria", "FAILED_RESIDUAL"]
@@ -59,12 +60,14 @@ class Problem:
     parameters : tuple of Parameter
         The model's parameters, then each run's fitted initial concentrations
         and time offset, in that order.
+    system : RateSystem
+        The mechanism's rate equations as arrays
+        (:func:`~kinfit.numerics.rate_system.compile_mechanism`).
     method : str
-        Integrator, see :func:`kinfit.simulate.integrate_flat` ("auto": the
-        compiled explicit integrator, LSODA where the equations are stiff).
+        Integrator, a key of :data:`kinfit.numerics.integrate.METHODS`.
     temperature : TemperatureLayout or None
         Each run's temperature group and T_ref, when the model's rate
-        constants depend on temperature (see :mod:`kinfit.temperature`).
+        constants depend on temperature (see :mod:`kinfit.numerics.temperature_laws`).
     signal : SignalModel or None
         When the experiment measures spectrometer signals: how
         concentrations become signals, with the linear unknowns
@@ -78,6 +81,7 @@ class Problem:
     experiment: object
     observation: object
     parameters: tuple
+    system: RateSystem
     method: str = "auto"
     rtol: float = RTOL
     atol: float = ATOL
@@ -151,10 +155,10 @@ class Problem:
             one pair; with it, runs at one temperature share one.
         """
         if self.temperature is not None:
-            groups = [self.mechanism.rate_arrays(rows) for rows in
+            groups = [self.system.rate_arrays(rows) for rows in
                       self.temperature.group_values(values[:, :self.n_model])]
             return [groups[g] for g in self.temperature.run_group]
-        shared = self.mechanism.rate_arrays(values[:, :self.n_model])
+        shared = self.system.rate_arrays(values[:, :self.n_model])
         return [shared] * len(self.experiment.runs)
 
     def log_rate_derivatives(self, values):
@@ -164,9 +168,9 @@ class Problem:
         -------
         list of ndarray [n_sets, n_directions, n_params], one per run
         """
-        mech = self.mechanism
-        out = np.zeros((values.shape[0], len(mech.directions), len(self.parameters)))
-        for j, p in enumerate(mech._constant_index):
+        constant_index = self.system.constant_index
+        out = np.zeros((values.shape[0], self.system.n_directions, len(self.parameters)))
+        for j, p in enumerate(constant_index):
             with np.errstate(divide="ignore"):
                 out[:, j, p] = 1.0 / values[:, p]
         if self.temperature is None:
@@ -176,7 +180,7 @@ class Problem:
         for slopes in self.temperature.energy_slopes():
             group = out.copy()
             for k_col, e_col, slope in slopes:
-                group[:, mech._constant_index == k_col, e_col] = slope
+                group[:, constant_index == k_col, e_col] = slope
             groups.append(group)
         return [groups[g] for g in self.temperature.run_group]
 
@@ -230,7 +234,7 @@ class Problem:
         """
         values = self.values_array(values)
         conc0, model_times = self.run_inputs(values, times)
-        return simulate_runs(self.mechanism, self.rate_arrays(values), conc0, model_times,
+        return simulate_runs(self.system, self.rate_arrays(values), conc0, model_times,
                              method=self.method, rtol=self.rtol, atol=self.atol,
                              max_rhs=max_rhs or self.max_rhs)
 
@@ -247,8 +251,8 @@ class Problem:
         jacobian : bool
         max_rhs : int, optional
         fallback : bool
-            Whether systems found stiff go to LSODA (see
-            :func:`kinfit.simulate.integrate_flat`).
+            Whether systems found stiff are handed on to the implicit methods
+            (see :func:`kinfit.numerics.integrate.integrate_flat`).
 
         Returns
         -------
@@ -277,12 +281,12 @@ class Problem:
                 if p >= 0:
                     shift[:, r] = values[:, p]
             t_out = t_out + np.repeat(shift.ravel(), np.tile(lay["sizes"], n_sets))
-        sol = integrate_flat(self.mechanism.stoichiometry, self.mechanism.present,
+        sol = integrate_flat(self.system.stoichiometry, self.system.present,
                              conc0.reshape(n_sets * n_runs, -1), k, orders, t_out, out_start,
                              method=self.method, rtol=self.rtol, atol=self.atol,
                              max_rhs=max_rhs or self.max_rhs,
                              sens=lay["sens"] if jacobian else None, fallback=fallback,
-                             extents=self.mechanism.extents)
+                             extents=self.system.extents)
         species = self.points.species_index
         pred = sol.conc[rows, species[None, :]]
         ok = sol.ok.reshape(n_sets, n_runs).all(axis=1)
@@ -307,7 +311,6 @@ class Problem:
         sens = sol.sens[rows, species[None, :], :]                  # [sets, points, q]
         dpred = np.einsum("spq,spqn->spn", sens, dq[:, run_of_point])
         if lay["has_offsets"]:
-            stoich = self.mechanism.stoichiometry
             for r, p in enumerate(self._offset_map):
                 if p < 0:
                     continue
@@ -316,9 +319,8 @@ class Problem:
                 for s_i in range(n_sets):
                     conc = sol.conc[rows[s_i, sl]]
                     eps = 1e-9 * max(float(np.max(self._conc0[r])), 1e-300)
-                    f = rates_fn(conc, np.repeat(k_r[s_i:s_i + 1], len(conc), axis=0),
-                                 np.repeat(e_r[s_i:s_i + 1], len(conc), axis=0),
-                                 self.mechanism.present, eps) @ stoich.T
+                    f = self.system.rhs(conc, np.repeat(k_r[s_i:s_i + 1], len(conc), axis=0),
+                                        np.repeat(e_r[s_i:s_i + 1], len(conc), axis=0), eps)
                     started = t_out[rows[s_i, sl]] > 0
                     dpred[s_i, sl, p] = np.where(started, f[np.arange(len(conc)),
                                                              species[sl]], 0.0)
@@ -398,7 +400,7 @@ def build_problem(mechanism, experiment, method="auto", components=None):
     mechanism : Mechanism
     experiment : Experiment
     method : str
-        Integrator (see :func:`kinfit.simulate.integrate_flat`).
+        Integrator, a key of :data:`kinfit.numerics.integrate.METHODS`.
     components : int or str, optional
         For full-spectrum data: overrides the experiment's ``components``
         ("auto", "all" or a number; see :mod:`kinfit.spectra`).
@@ -437,12 +439,14 @@ def build_problem(mechanism, experiment, method="auto", components=None):
             [run.temperature for run in experiment.runs],
             {n: p.vary for n, p in mechanism.parameters.items()}, experiment.source,
             [run.name for run in experiment.runs])
+    system = compile_mechanism(mechanism)
     return Problem(mechanism=mechanism, experiment=experiment, observation=observation,
-                   parameters=tuple(parameters), method=method, temperature=temperature,
+                   parameters=tuple(parameters), system=system, method=method,
+                   temperature=temperature,
                    signal=signal, _points=points, _conc0=conc0,
                    _initial_map=tuple(initial_map), _offset_map=tuple(offset_map),
                    _times=points.run_times,
-                   _layout=_flat_layout(mechanism, points, len(parameters), initial_map,
+                   _layout=_flat_layout(system, points, len(parameters), initial_map,
                                         offset_map))
 
 
@@ -460,10 +464,10 @@ def _grid_for(layout, n_sets):
     return layout[key]
 
 
-def _flat_layout(mechanism, observation, n_params, initial_map, offset_map):
+def _flat_layout(system, observation, n_params, initial_map, offset_map):
     """Index arrays of the flat evaluation path and the kernel-parameter map.
 
-    Kernel parameters (see :mod:`kinfit.compiled`): ln k of every direction,
+    Kernel parameters (see :mod:`kinfit.numerics.integrators`): ln k of every direction,
     each rate-law exponent that depends on a parameter, and the starting
     concentration of each species that some run fits. ``dq_static`` holds
     ∂q/∂θ for the exponents and starting concentrations [n_runs, n_q, n_params];
@@ -473,11 +477,10 @@ def _flat_layout(mechanism, observation, n_params, initial_map, offset_map):
     run_offset = np.concatenate([[0], np.cumsum(sizes)[:-1]])
     run_of_point = np.concatenate([np.full(sl.stop - sl.start, r)
                                    for r, sl in enumerate(observation.run_slices)])
-    n_dir = len(mechanism.directions)
+    n_dir = system.n_directions
     kind, jj, ss = [KIND_LOG_K] * n_dir, list(range(n_dir)), [0] * n_dir
-    coef = mechanism._order_coef                                 # [D, S, n_model]
-    order_entries = [(j, s) for j in range(coef.shape[0]) for s in range(coef.shape[1])
-                     if np.any(coef[j, s] != 0)]
+    coef = system.order_coef                                     # [D, S, n_model]
+    order_entries = system.order_entries
     for j, s in order_entries:
         kind.append(KIND_ORDER)
         jj.append(j)

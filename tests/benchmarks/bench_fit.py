@@ -27,7 +27,7 @@ sys.path.insert(0, str(ROOT))
 from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.estimation.least_squares import fit  # noqa: E402
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text  # noqa: E402
-from kinfit.numerics.simulate import simulate  # noqa: E402
+from kinfit.numerics.integrate import simulate  # noqa: E402
 
 POWER_LAW = """
 name = "A + B -> P, free orders"

@@ -43,7 +43,7 @@ from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.estimation.least_squares import fit  # noqa: E402
 from kinfit.inputs.mechanism import mechanism_from_text  # noqa: E402
 from kinfit.numerics.problem import build_problem  # noqa: E402
-from kinfit.numerics.simulate import simulate  # noqa: E402
+from kinfit.numerics.integrate import simulate  # noqa: E402
 
 RTOL, ATOL = 1e-8, 1e-12     # the same tolerances as kinfit's defaults
 SIGMA = 0.005                 # declared noise of the synthetic data

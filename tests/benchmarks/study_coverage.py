@@ -52,7 +52,7 @@ n = { value = 1.0, min = 0, max = 3 }
 def make_replicate(folder, seed):
     """Write model, experiment and noisy data of one replicate into `folder`."""
     from kinfit.inputs.mechanism import mechanism_from_text
-    from kinfit.numerics.simulate import simulate
+    from kinfit.numerics.integrate import simulate
 
     mech = mechanism_from_text(MODEL)
     rng = np.random.default_rng(seed)

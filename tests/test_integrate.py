@@ -1,4 +1,4 @@
-"""Simulation against closed-form integrated rate laws.
+"""Simulation against closed-form integrated rate laws, and the table of methods.
 
 Check values are copied from textbook closed forms (sources named beside each
 test; the formulas are standard physical-chemistry results):
@@ -15,10 +15,13 @@ import math
 
 import numpy as np
 import pytest
+from scipy.integrate import solve_ivp
 
+from conftest import MODELS
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.mechanism import mechanism_from_text
-from kinfit.numerics.simulate import integrate, simulate
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
+from kinfit.numerics.integrate import METHODS, describe_method, integrate_flat, simulate
+from kinfit.numerics.rate_system import compile_mechanism
 
 REL = 1e-6  # required agreement with the closed forms
 
@@ -175,8 +178,6 @@ def test_pseudo_first_order_exact_solution():
 def test_stiff_pre_equilibrium_matches_radau():
     # Reference integrator: scipy's Radau at tight tolerance on the same equations
     # (general-purpose reference library, independent of LSODA).
-    from scipy.integrate import solve_ivp
-
     mech = mechanism_from_text("""
         [[steps]]
         reaction = "A + B <=> I"
@@ -203,19 +204,6 @@ def test_stiff_pre_equilibrium_matches_radau():
     np.testing.assert_allclose(traj.conc.T[:, 1:], ref.y[:, 1:], rtol=1e-6, atol=1e-12)
 
 
-def test_batched_integration_equals_one_at_a_time():
-    mech = one_step("A + B -> P", "k * [A]^m * [B]", k=0.3, m=1.0)
-    values = np.array([[0.3, 1.0], [0.1, 0.5], [1.0, 2.0]])
-    k, orders = mech.rate_arrays(values)
-    conc0 = np.array([[1.0, 2.0, 0.0], [0.5, 1.0, 0.0], [1.0, 1.5, 0.0]])
-    t = np.linspace(0, 20, 11)
-    together = integrate(mech.stoichiometry, mech.present, conc0, k, orders, t)
-    for i in range(3):
-        alone = integrate(mech.stoichiometry, mech.present, conc0[i:i + 1], k[i:i + 1],
-                          orders[i:i + 1], t)
-        np.testing.assert_allclose(together.conc[i], alone.conc[0], rtol=1e-6, atol=1e-12)
-
-
 @pytest.mark.parametrize("method", ["BDF", "Radau", "DOP853"])
 def test_other_integrators_agree(method):
     # [Atkins] first order again, through the other solve_ivp methods.
@@ -223,17 +211,6 @@ def test_other_integrators_agree(method):
     traj = simulate(mech, {"A": 1.0}, times=[0.0, 10.0], method=method)
     assert traj["A"][1] == pytest.approx(0.367879441171442, rel=REL)
     assert traj.method == method
-
-
-def test_failed_system_does_not_spoil_others():
-    # A work bound of a few evaluations makes the hard system fail; the easy one
-    # integrated alongside it must still come back.
-    mech = one_step("A -> P", "k * [A]", k=1.0)
-    k, orders = mech.rate_arrays(np.array([[1e-3], [1e6]]))
-    out = integrate(mech.stoichiometry, mech.present, np.array([[1.0, 0.0], [1.0, 0.0]]),
-                    k, orders, np.linspace(0, 100, 5), max_rhs=300)
-    assert out.ok.tolist() == [True, False]
-    assert np.isfinite(out.conc[0]).all() and np.isnan(out.conc[1]).all()
 
 
 def test_simulate_checks_its_inputs():
@@ -248,3 +225,50 @@ def test_simulate_checks_its_inputs():
         simulate(mech, {"A": -1.0})
     with pytest.raises(KinfitError, match="unknown integrator"):
         simulate(mech, {"A": 1.0}, method="Euler")
+
+
+@pytest.mark.parametrize("path", sorted(MODELS.glob("*.toml")), ids=lambda p: p.name)
+def test_every_model_agrees_with_scipy_radau(path):
+    # Reference: scipy's Radau at rtol 1e-12 on the same right-hand side.
+    mech = load_mechanism(path)
+    system = compile_mechanism(mech)
+    values = np.array([mech.values()[n] for n in mech.parameter_names])
+    start = np.linspace(1.0, 0.5, mech.n_species)
+    t = np.linspace(0.0, 30.0, 16)
+    traj = simulate(mech, dict(zip(mech.species, start)), times=t)
+    k, orders = system.rate_arrays(values)
+    ref = solve_ivp(lambda _, y: system.rhs(y[None], k, orders, 1e-9)[0],
+                    (0, 30), start, method="Radau", t_eval=t, rtol=1e-12, atol=1e-14)
+    np.testing.assert_allclose(traj.conc, ref.y.T, rtol=1e-6, atol=1e-9)
+
+
+def test_stiff_system_is_handed_to_the_implicit_method():
+    # "auto": the explicit method finds the fast pre-equilibrium stiff, the compiled
+    # Rosenbrock method finishes it; scipy's Radau is the reference.
+    system = compile_mechanism(load_mechanism(MODELS / "pre_equilibrium.toml"))
+    y0 = [1.0, 0.5, 0.0, 0.0]
+    k, orders = system.rate_arrays(np.array([1e5, 1e4, 0.1]))
+    sol = integrate_flat(system.stoichiometry, system.present, np.array([y0]), k, orders,
+                         np.linspace(0, 60, 7), np.array([0, 7]))
+    assert sol.ok[0] and sol.n_stiff == 1 and sol.n_compiled == 0 and sol.n_implicit == 0
+    ref = integrate_flat(system.stoichiometry, system.present, np.array([y0]), k, orders,
+                         np.linspace(0, 60, 7), np.array([0, 7]), method="Radau")
+    assert ref.n_implicit == 1 and ref.n_compiled == 0
+    np.testing.assert_allclose(sol.conc, ref.conc, rtol=1e-6, atol=1e-10)
+    # "compiled" does not hand it over: it fails and says why
+    alone = integrate_flat(system.stoichiometry, system.present, np.array([y0]), k, orders,
+                           np.linspace(0, 60, 7), np.array([0, 7]), method="compiled")
+    assert not alone.ok[0] and "stiff" in alone.message
+
+
+def test_table_of_methods_and_their_description():
+    assert list(METHODS) == ["auto", "compiled", "LSODA", "BDF", "Radau", "RK45", "DOP853"]
+    assert describe_method("Radau", 3, 4, tally=True) == "Radau"
+    assert describe_method("auto") == "compiled Dormand-Prince 5(4)"
+    assert describe_method("auto", n_stiff=1) == "compiled Rosenbrock 4(3)"
+    assert describe_method("auto", n_stiff=1, n_implicit=1) == "LSODA"
+    assert describe_method("auto", 2, 5, tally=True) == (
+        "compiled Dormand-Prince 5(4); compiled Rosenbrock 4(3) for 2 stiff run "
+        "evaluation(s); LSODA for 5 run evaluation(s)")
+    mech = one_step("A -> P", "k * [A]", k=0.1)
+    assert simulate(mech, {"A": 1.0}, times=[0.0, 1.0]).method == "compiled Dormand-Prince 5(4)"
