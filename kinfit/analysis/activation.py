@@ -11,7 +11,7 @@ k_ref and the energy (Ea or ΔH‡) are ordinary fitted parameters.
 * k at each measured temperature;
 
 each with a standard error from the fit's covariance. All of them are linear
-in (ln k_ref, E) (:class:`kinfit.inputs.temperature.Linear`), so the delta method
+in (ln k_ref, E) (:class:`kinfit.numerics.temperature_laws.Linear`), so the delta method
 is exact on that scale; A, a exponential of ln A, gets the usual first-order
 error A·se(ln A) and an interval exp(ln A ± q se). The law that was not
 fitted is reached through the textbook relations at T_ref
@@ -175,7 +175,7 @@ class Activation:
         return find_estimate(self.estimates, name)
 
     def forms(self):
-        """The :class:`~kinfit.temperature.Linear` forms of the estimates."""
+        """The :class:`~kinfit.numerics.temperature_laws.Linear` forms of the estimates."""
         return linear_forms(self.law, self.reference, self.kappa, self.si_factor)
 
     def rate_at(self, temperature):

@@ -40,7 +40,7 @@ class ParseError(ValueError):
     """Text that is not a valid reaction or rate law.
 
     `column` is 1-based where known. The mechanism loader turns this into a
-    :class:`~kinfit.errors.KinfitError` naming the file and line.
+    :class:`~kinfit.core.errors.KinfitError` naming the file and line.
     """
 
     def __init__(self, message, column=None):

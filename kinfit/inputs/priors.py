@@ -1,7 +1,7 @@
 """Prior distributions of parameters for posterior sampling.
 
 kinfit chooses a default prior for every parameter from its role (see
-:mod:`kinfit.space`); a model file may replace it for one parameter, for a
+:mod:`kinfit.estimation.space`); a model file may replace it for one parameter, for a
 value known from earlier work::
 
     [parameters]

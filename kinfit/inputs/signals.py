@@ -14,7 +14,8 @@ matrix per run: time down, wavelength across) are declared in
 ``[signals.spectra]`` with the species whose spectra are to be resolved.
 
 This module reads those declarations and the spectrum files; the numerics
-(variable projection, SVD) are in :mod:`kinfit.spectra`.
+(variable projection, SVD) are in :mod:`kinfit.numerics.signal_model` and
+:mod:`kinfit.numerics.svd`.
 """
 
 from __future__ import annotations

@@ -247,7 +247,7 @@ def careful_long(path, shown):
 
 
 def read_wide(path, shown, units, channels=(), run=None, start=None):
-    """A run's wide table (see :mod:`kinfit.instrument`): a time column and one
+    """A run's wide table (see :mod:`kinfit.inputs.instrument`): a time column and one
     column per species or signal channel; an empty cell means not measured."""
     from kinfit.core.units import UnitError, check_unit, conversion_factor
 

@@ -2,7 +2,7 @@
 
 Every measured column is the concentration of one species of the model,
 or a spectrometer signal channel declared in the experiment's ``[signals]``
-table (mapped onto concentrations by :mod:`kinfit.spectra`; its points get
+table (mapped onto concentrations by :mod:`kinfit.numerics.signal_build`; its points get
 species index -1 here). :func:`build_observation` flattens all traces of all runs into one
 vector of data points and remembers, for each point, its run, its time on
 that run's grid and its species; :func:`observe` picks the model's values at

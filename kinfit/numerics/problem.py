@@ -72,7 +72,7 @@ class Problem:
         When the experiment measures spectrometer signals: how
         concentrations become signals, with the linear unknowns
         (absorptivities, offsets, drifts) profiled out by variable projection
-        in every evaluation (see :mod:`kinfit.spectra`). ``observation`` then
+        in every evaluation (see :mod:`kinfit.numerics.signal_model`). ``observation`` then
         holds the measured points and ``points`` the concentrations the model
         is evaluated at.
     """
@@ -403,7 +403,7 @@ def build_problem(mechanism, experiment, method="auto", components=None):
         Integrator, a key of :data:`kinfit.numerics.integrate.METHODS`.
     components : int or str, optional
         For full-spectrum data: overrides the experiment's ``components``
-        ("auto", "all" or a number; see :mod:`kinfit.spectra`).
+        ("auto", "all" or a number; see :mod:`kinfit.numerics.signal_model`).
 
     Raises
     ------

@@ -338,7 +338,7 @@ def integrate_batch(stoich, present, y0, k, E, t_out, out_start, *, rtol, atol, 
         Accepted steps allowed per system before it is reported stiff.
     basis : tuple (N [n_species, n_state], M [n_state, n_directions]), optional
         Integrate n_state extents z with c = c0 + N z and dz/dt = M r(c)
-        (see :attr:`kinfit.numerics.rate_system.RateSystem.extents`): fewer equations when
+        (see :class:`kinfit.numerics.rate_system.RateSystem`, field ``extents``): fewer equations when
         a mechanism has fewer steps than species. Default: the concentrations
         themselves (N = I, M = stoich).
 
