@@ -9,13 +9,17 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 
-from conftest import LINE_SIGMA, write_line_problem
-from kinfit.inputs.experiment import load_experiment
+from conftest import LINE_SIGMA, write, write_line_problem
 from kinfit.core.errors import KinfitError
-from kinfit.estimation.least_squares import fit
-from kinfit.inputs.mechanism import load_mechanism
+from kinfit.estimation import posterior as posterior_module
+from kinfit.estimation import profile as profile_module
 from kinfit.estimation.chains import CHAIN_FILE, load_chain
+from kinfit.estimation.least_squares import ProblemSettings, fit
 from kinfit.estimation.posterior import compare_intervals, sample
+from kinfit.estimation.space import parameter_space
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
+from kinfit.numerics.problem import build_problem
 
 
 def test_declared_noise_posterior_is_the_least_squares_answer(line_posterior):
@@ -167,3 +171,53 @@ def test_bad_settings(line_fit, kwargs, message):
     args.update(kwargs)
     with pytest.raises(KinfitError, match=message):
         sample(exp, mech, **args)
+
+
+def full_spectra_case(folder):
+    """Seeded synthetic full spectra of A -> B (k = 0.05 s⁻¹, first order, closed form
+    [A] = [A]0 exp(-k t)), two invented Gaussian bands, 9 wavelengths, declared noise."""
+    wavelengths = np.linspace(400.0, 600.0, 9)
+    eps = np.array([np.exp(-0.5 * ((wavelengths - 450) / 40) ** 2),
+                    0.8 * np.exp(-0.5 * ((wavelengths - 540) / 40) ** 2)])
+    rng = np.random.default_rng(8)
+    t = np.linspace(0, 60, 16)
+    runs = []
+    for r, a0 in enumerate((1.0, 0.6)):
+        a = a0 * np.exp(-0.05 * t)
+        y = np.column_stack([a, a0 - a]) @ eps + rng.normal(0, 0.002, (t.size, eps.shape[1]))
+        lines = ["time," + ",".join(f"{w:g}" for w in wavelengths)]
+        lines += [f"{ti:g}," + ",".join(f"{v:.6f}" for v in row) for ti, row in zip(t, y)]
+        write(folder, f"s{r}.csv", "\n".join(lines) + "\n")
+        runs.append(f'[[runs]]\nname = "s{r}"\nspectrum = "s{r}.csv"\ninitial = {{ A = {a0} }}\n')
+    write(folder, "e.toml", '[units]\ntime = "s"\nconcentration = "mM"\n[signals]\n'
+                            'offset = "none"\n[signals.spectra]\nabsorbers = ["A", "B"]\n'
+                            'components = "auto"\nnoise = 0.002\n' + "\n".join(runs))
+    mech = mechanism_from_text('[[steps]]\nreaction = "A -> B"\nrate = "k * [A]"\n'
+                               '[parameters]\nk = 0.03\n')
+    return load_experiment(folder / "e.toml"), mech
+
+
+def test_sampled_and_profiled_problems_are_the_fitted_one(tmp_path, monkeypatch):
+    # A fit with a chosen integrator and every wavelength ("all" components, where the
+    # experiment file asks for "auto", which keeps 2 singular vectors here) must be
+    # sampled and profiled on that same residual problem, not on the default one.
+    exp, mech = full_spectra_case(tmp_path)
+    result = fit(exp, mech, starts=1, method="LSODA", components="all")
+    assert result.problem_settings == ProblemSettings(method="LSODA", components="all")
+    default = build_problem(mech, exp)
+    assert default.observation.n_points < result.n_points == 2 * 16 * 9
+    seen = []
+
+    def spy(problem, *args, **kwargs):
+        seen.append(problem)
+        return parameter_space(problem, *args, **kwargs)
+
+    monkeypatch.setattr(posterior_module, "parameter_space", spy)
+    monkeypatch.setattr(profile_module, "parameter_space", spy)
+    post = sample(exp, mech, walkers=4, steps=3, seed=1, fit_result=result, bands=False)
+    assert len(seen) == 2 and post.profiles is not None       # the sampler's, the profile's
+    for problem in seen:
+        assert problem.method == "LSODA"
+        assert problem.observation.n_points == result.n_points
+        np.testing.assert_allclose(problem.residuals(result.values)[0], result.residuals,
+                                   rtol=1e-6, atol=1e-6 * np.abs(result.residuals).max())
