@@ -69,7 +69,7 @@ class ChainState:
     accepted: np.ndarray
     start: np.ndarray
     start_log_prob: np.ndarray
-    random_state: tuple
+    random_state: tuple[str, np.ndarray, int, int, float]
     elapsed: float = 0.0
     n_evaluations: int = 0
 

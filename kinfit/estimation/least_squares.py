@@ -136,7 +136,7 @@ class FitResult:
         For spectrometer signals: absorptivities, offsets and drifts solved
         by variable projection with standard errors from the full Jacobian,
         resolved spectra and the SVD of full-spectrum data (see
-        :mod:`kinfit.spectra`).
+        :mod:`kinfit.numerics.spectra`).
     residual_checks : tuple of TraceCheck
         Runs test and lag-1 autocorrelation of each trace's residuals (see
         :mod:`kinfit.estimation.residual_checks`).

@@ -369,7 +369,8 @@ def _bands(space: ParameterSpace, samples_u, rng, n_draws=_BAND_DRAWS, n_grid=20
 
 # --------------------------------------------------------------- front door
 
-def sample(experiment: Experiment, mechanism: Mechanism, walkers=DEFAULT_WALKERS, steps=DEFAULT_STEPS, seed=0, *,
+def sample(experiment: Experiment, mechanism: Mechanism, walkers=DEFAULT_WALKERS,
+           steps=DEFAULT_STEPS, seed=0, *,
            noise="auto", moves=DEFAULT_MOVES, burn=None, thin=1, checkpoint=None,
            checkpoint_every=CHECKPOINT_EVERY, resume=False, max_time=None, progress=None,
            fit_result=None, starts=DEFAULT_STARTS, profile=True, bands=True):

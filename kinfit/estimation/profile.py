@@ -76,7 +76,7 @@ class ParameterProfile:
     best: float
     values: np.ndarray
     delta: np.ndarray
-    intervals: dict
+    intervals: dict[float, tuple[float | None, float | None]]
     closed: bool
 
     def to_dict(self):
@@ -103,12 +103,12 @@ class Profiles:
     warnings : tuple of str
     """
 
-    parameters: dict
-    levels: tuple
-    thresholds: dict
+    parameters: dict[str, ParameterProfile]
+    levels: tuple[float, ...]
+    thresholds: dict[float, float]
     deviance: str
     n_optimisations: int
-    warnings: tuple = ()
+    warnings: tuple[str, ...] = ()
 
     def to_dict(self):
         return {"levels": list(self.levels),

@@ -45,8 +45,9 @@ and counted, for the least-squares fit and the profile's refits.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, replace
-from typing import TYPE_CHECKING, Callable, NamedTuple
+from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
 
@@ -167,7 +168,7 @@ class FitScale:
         return _natural(u, self.log10, self.ln)
 
     def from_natural(self, x):
-        """Natural values [n, n_dim] -> fitting scale [n, n_dim] (−inf for x = 0 on a log scale)."""
+        """Natural values [n, n_dim] -> fitting scale [n, n_dim] (−inf for x = 0 on a log)."""
         x = np.atleast_2d(np.asarray(x, dtype=float))
         with np.errstate(divide="ignore", invalid="ignore"):
             out = np.where(self.log10, np.log10(x), x)

@@ -1,8 +1,9 @@
 """The parameter space that intervals and posteriors are computed in.
 
-:func:`parameter_space` takes the free parameters of a :class:`~kinfit.objective.Problem`
-onto the scale the fit already uses, adds noise levels when they are to be
-sampled, and gives every parameter its prior.
+:func:`parameter_space` takes the free parameters of a
+:class:`~kinfit.numerics.problem.Problem` onto the scale the fit already uses,
+adds noise levels when they are to be sampled, and gives every parameter its
+prior.
 
 Scales
 ------
@@ -10,7 +11,7 @@ The fit's scale (:mod:`kinfit.estimation.scale`): rate constants as
 u = log10 k, orders, initial concentrations and time offsets on their own
 scale; sampled noise levels as log10 σ.
 
-Default priors (a model file may replace one, see :mod:`kinfit.priors`)
+Default priors (a model file may replace one, see :mod:`kinfit.inputs.priors`)
 ------------------------------------------------------------------------
 * rate constant: log-uniform between its bounds, i.e. uniform in log10 k;
 * order, initial concentration, time offset: uniform between the bounds;
@@ -20,7 +21,7 @@ Default priors (a model file may replace one, see :mod:`kinfit.priors`)
 
 A bound that is open makes the default prior flat (improper) on that side:
 the posterior is then proper only if the data pin the parameter down, which
-the profile-likelihood check reports (see :mod:`kinfit.profile`).
+the profile-likelihood check reports (see :mod:`kinfit.estimation.profile`).
 
 Noise (how the likelihood treats measurement error)
 ----------------------------------------------------
