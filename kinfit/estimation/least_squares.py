@@ -11,12 +11,12 @@ How the fit is set up
   are reported on the natural scale (delta method).
 * Several starting points: the model file's values, plus the best of a
   Latin-hypercube screen of the start box (all screened sets are evaluated in
-  one vectorised integration). Each start is refined by a
-  bounded Levenberg–Marquardt loop; the best is kept and the number of
-  starts that reached it is reported.
+  one vectorised integration). Each start is refined by a bounded
+  Levenberg–Marquardt loop (:mod:`kinfit.estimation.levenberg_marquardt`);
+  the best is kept and the number of starts that reached it is reported.
 * The Jacobian is exact: forward sensitivity equations are integrated with
-  the states (:mod:`kinfit.numerics.compiled`), so one integration gives residuals and
-  Jacobian together. lmfit is used at the edges — the result converts to
+  the states (:mod:`kinfit.numerics.compiled`), so one integration gives
+  residuals and Jacobian together. lmfit is used at the edges — the result converts to
   :class:`lmfit.Parameters` — not inside the loop, where its parameter
   objects would cost more than the integration.
 * Standard errors come from (JᵀJ)⁻¹, scaled by the reduced χ² when the noise
