@@ -32,7 +32,7 @@ _EXPORTS = {
     "simulate": "numerics.integrate",
     "Trajectory": "numerics.integrate",
     "residuals": "numerics.problem",
-    "log_likelihood": "numerics.problem",
+    "log_likelihood": "estimation.likelihood",
     "fit": "estimation.least_squares",
     "FitResult": "estimation.least_squares",
     "rank": "analysis.ranking",

@@ -318,5 +318,5 @@ def line_posterior(tmp_path_factory):
 
     paths = write_line_problem(tmp_path_factory.mktemp("line"))
     post = sample(load_experiment(paths["experiment"]), load_mechanism(paths["model"]),
-                  walkers=16, steps=1500, seed=11, starts=1, progress=False)
+                  walkers=16, steps=1500, seed=11, starts=1)
     return post, paths

@@ -351,16 +351,6 @@ def test_rank_needs_two_candidates_and_a_known_criterion(rank_inputs):
     assert not (rank_inputs / "x").exists()
 
 
-def test_progress_bar_counts_fits():
-    from kinfit.app.cli import _ProgressBar
-
-    bar = _ProgressBar("fitting candidates")
-    for done in (1, 2, 3):
-        bar(done, 3, f"candidate {done}")
-    assert bar.bar.length == 3 and bar.bar.pos == 3
-    bar.close()
-
-
 # ------------------------------------------------------------------- sample
 
 def _sample_args(paths, out, *extra):
@@ -414,7 +404,7 @@ def test_killed_sampler_resumes_to_the_same_chain(tmp_path):
 
     import numpy as np
 
-    from kinfit.estimation.posterior import load_chain
+    from kinfit.estimation.chains import load_chain
 
     paths = write_line_problem(tmp_path)
     command = [sys.executable, "-m", "kinfit.app.cli"]

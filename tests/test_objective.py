@@ -13,7 +13,8 @@ from conftest import write
 from kinfit.inputs.experiment import load_experiment
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
-from kinfit.numerics.problem import build_problem, information_criteria, log_likelihood, residuals
+from kinfit.estimation.likelihood import log_likelihood
+from kinfit.numerics.problem import build_problem, residuals
 
 
 def zero_order_case(folder, noise=""):
@@ -59,15 +60,6 @@ def test_fit_equals_ordinary_least_squares(tmp_path):
     n = result.n_points
     lmfit_aic = n * math.log(result.chi2 / n) + 2 * result.n_free
     assert result.aic - lmfit_aic == pytest.approx(n * (math.log(2 * math.pi) + 1), rel=1e-12)
-
-
-def test_aicc_formula():
-    # Hurvich & Tsai (1989): AICc = AIC + 2p(p+1)/(N-p-1)
-    crit = information_criteria(-10.0, 20, 3)
-    assert crit["aic"] == 26.0
-    assert crit["aicc"] == pytest.approx(26.0 + 2 * 3 * 4 / 16)
-    assert crit["bic"] == pytest.approx(20.0 + 3 * math.log(20))
-    assert information_criteria(-10.0, 4, 3)["aicc"] == math.inf
 
 
 def test_declared_noise_likelihood_matches_scipy(tmp_path):

@@ -9,38 +9,17 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 
-from conftest import LINE_SIGMA, write_line_problem
-from kinfit.inputs.experiment import load_experiment
+from conftest import LINE_SIGMA, write, write_line_problem
 from kinfit.core.errors import KinfitError
-from kinfit.estimation.least_squares import fit
-from kinfit.inputs.mechanism import load_mechanism
-from kinfit.estimation.posterior import (CHAIN_FILE, compare_intervals, load_chain, run_ensemble, sample,
-                              write_chain)
-
-
-def test_emcee_recovers_a_gaussian_target():
-    # reference: emcee's documented behaviour (its quickstart and the normal-target test
-    # of its own suite, from memory): on a Gaussian the ensemble's mean and covariance
-    # are the target's, within Monte Carlo error
-    mean = np.array([1.0, -2.0, 0.5])
-    cov = np.array([[1.0, 0.6, 0.0], [0.6, 1.0, 0.3], [0.0, 0.3, 0.25]])
-    prec = np.linalg.inv(cov)
-
-    def log_prob(x):
-        d = x - mean
-        return -0.5 * np.einsum("ij,jk,ik->i", d, prec, d)
-
-    rng = np.random.default_rng(0)
-    start = mean + 0.1 * rng.normal(size=(32, 3))
-    state, stopped = run_ensemble(log_prob, start, 2500, seed=1, moves="stretch",
-                                  progress=False)
-    assert stopped == "completed" and state.chain.shape == (2500, 32, 3)
-    flat = state.chain[500:].reshape(-1, 3)
-    n_eff = flat.shape[0] / 40.0          # τ of the stretch move in 3-D is below 40 steps
-    np.testing.assert_array_less(np.abs(flat.mean(axis=0) - mean),
-                                 4 * np.sqrt(np.diag(cov) / n_eff))
-    np.testing.assert_allclose(np.cov(flat, rowvar=False), cov, atol=0.08)
-    assert 0.3 < state.accepted.mean() / 2500 < 0.8
+from kinfit.estimation import posterior as posterior_module
+from kinfit.estimation import profile as profile_module
+from kinfit.estimation.chains import CHAIN_FILE, load_chain
+from kinfit.estimation.least_squares import ProblemSettings, fit
+from kinfit.estimation.posterior import compare_intervals, sample
+from kinfit.estimation.space import parameter_space
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
+from kinfit.numerics.problem import build_problem
 
 
 def test_declared_noise_posterior_is_the_least_squares_answer(line_posterior):
@@ -69,7 +48,7 @@ def test_unknown_noise_posterior_is_the_t_interval(tmp_path):
     paths = write_line_problem(tmp_path, declared=False, seed=5, n=7)
     exp, mech = load_experiment(paths["experiment"]), load_mechanism(paths["model"])
     post = sample(exp, mech, walkers=32, steps=2000, seed=2, noise="shared", starts=1,
-                  profile=False, bands=False, progress=False)
+                  profile=False, bands=False)
     ols = sm.OLS(paths["y"], sm.add_constant(paths["t"])).fit()
     nu = len(paths["y"]) - 2
     lo, hi = ols.conf_int(alpha=0.05)[1]
@@ -145,7 +124,7 @@ def line_fit(tmp_path_factory):
 def _short(line_fit, steps, **kw):
     exp, mech, result = line_fit
     return sample(exp, mech, walkers=8, steps=steps, seed=4, fit_result=result, profile=False,
-                  bands=False, progress=False, checkpoint_every=50, **kw)
+                  bands=False, checkpoint_every=50, **kw)
 
 
 def test_resumed_chain_equals_an_uninterrupted_one(line_fit, tmp_path):
@@ -168,7 +147,7 @@ def test_resume_refuses_a_chain_made_differently(line_fit, tmp_path):
     exp, mech, result = line_fit
     with pytest.raises(KinfitError, match="different settings \\(seed 4 -> 5\\)"):
         sample(exp, mech, walkers=8, steps=80, seed=5, fit_result=result, profile=False,
-               bands=False, progress=False, checkpoint=path, resume=True)
+               bands=False, checkpoint=path, resume=True)
 
 
 def test_time_budget_stops_early_and_says_so(line_fit):
@@ -176,26 +155,6 @@ def test_time_budget_stops_early_and_says_so(line_fit):
     assert post.stopped == "time budget" and post.chain.shape[0] < 100_000
     assert not post.converged
     assert "time budget ran out" in post.warnings[0]
-
-
-def test_damaged_chain_file(tmp_path):
-    bad = tmp_path / CHAIN_FILE
-    bad.write_bytes(b"not a zip file")
-    with pytest.raises(KinfitError, match="not a kinfit chain file or damaged"):
-        load_chain(bad)
-    with pytest.raises(KinfitError, match="no such chain file"):
-        load_chain(tmp_path / "missing.npz")
-
-
-def test_chain_round_trip(line_fit, tmp_path):
-    post = _short(line_fit, 20)
-    path = tmp_path / "copy.npz"
-    write_chain(path, post.state, post.chain_meta)
-    state, meta = load_chain(path)
-    np.testing.assert_array_equal(state.chain, post.chain)
-    assert state.random_state[2] == post.state.random_state[2]
-    np.testing.assert_array_equal(state.random_state[1], post.state.random_state[1])
-    assert meta["labels"] == ["log10_k", "A0_r1"]
 
 
 @pytest.mark.parametrize("kwargs, message", [
@@ -208,8 +167,57 @@ def test_chain_round_trip(line_fit, tmp_path):
 ])
 def test_bad_settings(line_fit, kwargs, message):
     exp, mech, result = line_fit
-    args = dict(walkers=8, steps=10, seed=0, fit_result=result, profile=False, bands=False,
-                progress=False)
+    args = dict(walkers=8, steps=10, seed=0, fit_result=result, profile=False, bands=False)
     args.update(kwargs)
     with pytest.raises(KinfitError, match=message):
         sample(exp, mech, **args)
+
+
+def full_spectra_case(folder):
+    """Seeded synthetic full spectra of A -> B (k = 0.05 s⁻¹, first order, closed form
+    [A] = [A]0 exp(-k t)), two invented Gaussian bands, 9 wavelengths, declared noise."""
+    wavelengths = np.linspace(400.0, 600.0, 9)
+    eps = np.array([np.exp(-0.5 * ((wavelengths - 450) / 40) ** 2),
+                    0.8 * np.exp(-0.5 * ((wavelengths - 540) / 40) ** 2)])
+    rng = np.random.default_rng(8)
+    t = np.linspace(0, 60, 16)
+    runs = []
+    for r, a0 in enumerate((1.0, 0.6)):
+        a = a0 * np.exp(-0.05 * t)
+        y = np.column_stack([a, a0 - a]) @ eps + rng.normal(0, 0.002, (t.size, eps.shape[1]))
+        lines = ["time," + ",".join(f"{w:g}" for w in wavelengths)]
+        lines += [f"{ti:g}," + ",".join(f"{v:.6f}" for v in row) for ti, row in zip(t, y)]
+        write(folder, f"s{r}.csv", "\n".join(lines) + "\n")
+        runs.append(f'[[runs]]\nname = "s{r}"\nspectrum = "s{r}.csv"\ninitial = {{ A = {a0} }}\n')
+    write(folder, "e.toml", '[units]\ntime = "s"\nconcentration = "mM"\n[signals]\n'
+                            'offset = "none"\n[signals.spectra]\nabsorbers = ["A", "B"]\n'
+                            'components = "auto"\nnoise = 0.002\n' + "\n".join(runs))
+    mech = mechanism_from_text('[[steps]]\nreaction = "A -> B"\nrate = "k * [A]"\n'
+                               '[parameters]\nk = 0.03\n')
+    return load_experiment(folder / "e.toml"), mech
+
+
+def test_sampled_and_profiled_problems_are_the_fitted_one(tmp_path, monkeypatch):
+    # A fit with a chosen integrator and every wavelength ("all" components, where the
+    # experiment file asks for "auto", which keeps 2 singular vectors here) must be
+    # sampled and profiled on that same residual problem, not on the default one.
+    exp, mech = full_spectra_case(tmp_path)
+    result = fit(exp, mech, starts=1, method="LSODA", components="all")
+    assert result.problem_settings == ProblemSettings(method="LSODA", components="all")
+    default = build_problem(mech, exp)
+    assert default.observation.n_points < result.n_points == 2 * 16 * 9
+    seen = []
+
+    def spy(problem, *args, **kwargs):
+        seen.append(problem)
+        return parameter_space(problem, *args, **kwargs)
+
+    monkeypatch.setattr(posterior_module, "parameter_space", spy)
+    monkeypatch.setattr(profile_module, "parameter_space", spy)
+    post = sample(exp, mech, walkers=4, steps=3, seed=1, fit_result=result, bands=False)
+    assert len(seen) == 2 and post.profiles is not None       # the sampler's, the profile's
+    for problem in seen:
+        assert problem.method == "LSODA"
+        assert problem.observation.n_points == result.n_points
+        np.testing.assert_allclose(problem.residuals(result.values)[0], result.residuals,
+                                   rtol=1e-6, atol=1e-6 * np.abs(result.residuals).max())

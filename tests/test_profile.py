@@ -7,11 +7,13 @@ import pytest
 import statsmodels.api as sm
 
 from conftest import LINE_SIGMA, write_line_problem
-from kinfit.inputs.experiment import load_experiment
 from kinfit.core.errors import KinfitError
+from kinfit.estimation import profile as profile_module
 from kinfit.estimation.least_squares import fit
-from kinfit.inputs.mechanism import load_mechanism
 from kinfit.estimation.profile import profile_intervals
+from kinfit.estimation.space import parameter_space
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism
 
 
 def test_straight_line_profile_equals_the_ols_interval(tmp_path):
@@ -82,3 +84,25 @@ def test_bad_requests(tmp_path):
         profile_intervals(result, names=["m"])
     with pytest.raises(KinfitError, match="between 0 and 1"):
         profile_intervals(result, levels=(95,))
+
+
+def test_profile_refits_the_fitted_problem(tmp_path, monkeypatch):
+    # a fit made with a chosen integrator is profiled with that integrator, and the
+    # interval is still the straight line's (statsmodels OLS, fixed scale)
+    paths = write_line_problem(tmp_path)
+    result = fit(load_experiment(paths["experiment"]), load_mechanism(paths["model"]),
+                 starts=1, method="Radau")
+    seen = []
+
+    def spy(problem, *args, **kwargs):
+        seen.append(problem)
+        return parameter_space(problem, *args, **kwargs)
+
+    monkeypatch.setattr(profile_module, "parameter_space", spy)
+    profiles = profile_intervals(result, names=["k"])
+    assert [p.method for p in seen] == ["Radau"]
+    ols = sm.OLS(paths["y"], sm.add_constant(paths["t"])).fit(
+        cov_type="fixed scale", cov_kwds={"scale": LINE_SIGMA ** 2})
+    b_lo, b_hi = ols.conf_int(alpha=0.05)[1]
+    np.testing.assert_allclose(profiles.parameters["k"].intervals[0.95], [-b_hi, -b_lo],
+                               rtol=2e-4)

@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 
 from conftest import write
+from kinfit.estimation.likelihood import gaussian_log_likelihood
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import mechanism_from_text
@@ -216,8 +217,9 @@ def test_sampler_sees_profiled_likelihood(tmp_path):
     problem = build_problem(mech, exp)
     k = result.values["k"]
     rows = np.array([[k], [k * 1.02], [k * 0.98]])
-    batch = problem.log_likelihood(problem.residuals(rows))
-    single = [problem.log_likelihood(problem.residuals(r[None]))[0] for r in rows]
+    sigma = problem.observation.sigma
+    batch = gaussian_log_likelihood(problem.residuals(rows), sigma)
+    single = [gaussian_log_likelihood(problem.residuals(r[None]), sigma)[0] for r in rows]
     np.testing.assert_allclose(batch, single, rtol=1e-12)
     assert batch[0] > batch[1] and batch[0] > batch[2]
     # (the fit integrates with sensitivities, whose step control differs slightly)
@@ -233,7 +235,7 @@ def test_posterior_with_profiled_absorptivities(tmp_path):
 
     exp, mech = ab_signal_case(tmp_path)
     post = sample(exp, mech, walkers=16, steps=600, seed=3, starts=1, profile=False,
-                  bands=False, progress=False)
+                  bands=False)
     assert not any(name.startswith(("eps_", "offset_", "drift_")) for name in post.names)
     k = post.samples[:, post.names.index("k")]
     assert np.std(k) == pytest.approx(post.fit.stderr["k"], rel=0.25)

@@ -12,8 +12,9 @@ from conftest import write_line_problem
 from kinfit.inputs.experiment import load_experiment
 from kinfit.core.errors import KinfitError
 from kinfit.inputs.mechanism import load_mechanism
-from kinfit.numerics.problem import build_problem
+from kinfit.estimation.likelihood import gaussian_log_likelihood
 from kinfit.estimation.space import parameter_space
+from kinfit.numerics.problem import build_problem
 
 
 def _problem(folder, declared=True):
@@ -66,18 +67,18 @@ def test_per_species_likelihood_matches_scipy(tmp_path):
 
 
 def test_shared_sigma_maximised_is_the_fits_concentrated_likelihood(tmp_path):
-    # consistency with kinfit.objective: max over σ of the shared-σ likelihood is
-    # -N/2 (ln(2π RSS/N) + 1), the convention of the fit (statsmodels' OLS llf)
+    # consistency with kinfit.estimation.likelihood: max over σ of the shared-σ likelihood
+    # is -N/2 (ln(2π RSS/N) + 1), the convention of the fit (statsmodels' OLS llf)
     problem = _problem(tmp_path, declared=False)
     space = parameter_space(problem, noise="shared")
     u = np.array([[math.log10(0.05), 1.0, 0.0]])
     res = problem.residuals(space.to_values(u))
     sigma_hat = math.sqrt(float(res[0] @ res[0]) / res.shape[1])
     u[0, 2] = math.log10(sigma_hat)
-    assert space.log_likelihood(res, u)[0] == pytest.approx(problem.log_likelihood(res)[0],
-                                                            rel=1e-12)
+    concentrated = gaussian_log_likelihood(res)[0]
+    assert space.log_likelihood(res, u)[0] == pytest.approx(concentrated, rel=1e-12)
     u[0, 2] = math.log10(1.1 * sigma_hat)
-    assert space.log_likelihood(res, u)[0] < problem.log_likelihood(res)[0]
+    assert space.log_likelihood(res, u)[0] < concentrated
 
 
 def test_noise_name_clash(files):

@@ -19,6 +19,7 @@ import typer
 from kinfit.core.defaults import (CHECKPOINT_EVERY, DEFAULT_CRITERION, DEFAULT_DRAWS,
                                   DEFAULT_MAX_CONVERSION, DEFAULT_MOVES, DEFAULT_SEED,
                                   DEFAULT_STARTS, DEFAULT_STEPS, DEFAULT_WALKERS, LATTICE_STARTS)
+from kinfit.app.progress import ProgressBar, SamplingBar
 from kinfit.core.errors import KinfitError, KinfitWarning
 
 app = typer.Typer(
@@ -258,7 +259,8 @@ def sample_command(
 
         from kinfit.inputs.experiment import load_experiment
         from kinfit.inputs.mechanism import load_mechanism
-        from kinfit.estimation.posterior import CHAIN_FILE, load_chain, sample
+        from kinfit.estimation.chains import CHAIN_FILE, load_chain
+        from kinfit.estimation.posterior import sample
         from kinfit.output.report import format_posterior, write_posterior
 
         if max_time is not None and not max_time > 0:
@@ -277,13 +279,16 @@ def sample_command(
             raise KeyboardInterrupt
 
         previous = signal.signal(signal.SIGTERM, stop)
+        bar = SamplingBar() if sys.stderr.isatty() else None
         try:
             post = sample(exp, mech, walkers=walkers, steps=steps, seed=seed, noise=noise,
                           moves=moves, burn=burn, thin=thin, checkpoint=chain_file,
                           checkpoint_every=checkpoint_every, resume=resume, max_time=max_time,
-                          starts=starts, profile=profile)
+                          starts=starts, profile=profile, progress=bar)
         finally:
             signal.signal(signal.SIGTERM, previous)
+            if bar is not None:
+                bar.close()
         written = write_posterior(out, post)
         temp_summary = None
         if report:
@@ -530,7 +535,12 @@ def _demo_posterior(out, exp, mech, result):
     from kinfit.estimation.posterior import sample
     from kinfit.output.report import format_posterior, write_posterior
 
-    post = sample(exp, mech, walkers=32, steps=3000, seed=0, fit_result=result)
+    bar = SamplingBar() if sys.stderr.isatty() else None
+    try:
+        post = sample(exp, mech, walkers=32, steps=3000, seed=0, fit_result=result, progress=bar)
+    finally:
+        if bar is not None:
+            bar.close()
     typer.echo(format_posterior(post) + "\n")
     return write_posterior(out, post)
 
@@ -627,7 +637,7 @@ def rank_command(
             raise KinfitError(f"--conversion {conversion}: expected a fraction in (0, 1]")
         exp = load_experiment(experiment)
         mechanisms = [load_mechanism(m) for m in model]
-        bar = _ProgressBar("fitting candidates") if sys.stderr.isatty() else None
+        bar = ProgressBar("fitting candidates") if sys.stderr.isatty() else None
         try:
             comparison = rank(exp, mechanisms, grid, starts=starts, lattice_starts=lattice_starts,
                               seed=seed, workers=workers, criterion=criterion.lower(),
@@ -651,24 +661,6 @@ def rank_command(
         typer.echo(format_ranking(comparison, top=top))
         typer.echo(f"\nWrote {', '.join(p.name for p in written if p.parent == out)} and "
                    f"best/ in {out}")
-
-
-class _ProgressBar:
-    """A progress bar on stderr, created on the first report (the total is known then)."""
-
-    def __init__(self, label):
-        self.label, self.bar = label, None
-
-    def __call__(self, done, total, name):
-        if self.bar is None:
-            self.bar = typer.progressbar(length=total, label=self.label, show_pos=True,
-                                         file=sys.stderr)
-            self.bar.__enter__()
-        self.bar.update(1)
-
-    def close(self):
-        if self.bar is not None:
-            self.bar.__exit__(None, None, None)
 
 
 @app.command("report")

@@ -59,13 +59,13 @@ class Diagnostics:
     """
 
     converged: bool
-    reasons: tuple
+    reasons: tuple[str, ...]
     advice: str
-    autocorr_time: dict
-    ess: dict
-    rhat: dict
+    autocorr_time: dict[str, float]
+    ess: dict[str, float]
+    rhat: dict[str, float]
     acceptance_fraction: float
-    acceptance_range: tuple
+    acceptance_range: tuple[float, float]
     n_steps: int
     burn_in: int
     thin: int

@@ -5,49 +5,83 @@ run; fitted initial concentrations and time offsets belong to one run each.
 
 How the fit is set up
 ---------------------
-* Rate constants are fitted as log10 k (positive by construction and well
-  conditioned when k is far from 1); orders, initial concentrations and time
-  offsets on their own scale. Values, standard errors and correlations are
-  reported on the natural scale (delta method).
+* Rate constants are fitted as log10 k, orders, initial concentrations and
+  time offsets on their own scale (:mod:`kinfit.estimation.scale` owns the
+  fitting scale and its start box). Values, standard errors and correlations
+  are reported on the natural scale (delta method).
 * Several starting points: the model file's values, plus the best of a
   Latin-hypercube screen of the start box (all screened sets are evaluated in
-  one vectorised integration). The start box is the bounds where they are
-  finite, else ±2 decades around a rate constant's start, ±1.5 around an
-  order, ±50 % around an initial concentration. Each start is refined by a
-  bounded Levenberg–Marquardt loop; the best is kept and the number of
-  starts that reached it is reported.
+  one vectorised integration). Each start is refined by a bounded
+  Levenberg–Marquardt loop (:mod:`kinfit.estimation.levenberg_marquardt`);
+  the best is kept and the number of starts that reached it is reported.
 * The Jacobian is exact: forward sensitivity equations are integrated with
-  the states (:mod:`kinfit.compiled`), so one integration gives residuals and
-  Jacobian together. lmfit is used at the edges — the result converts to
+  the states (:mod:`kinfit.numerics.integrators`), so one integration gives
+  residuals and Jacobian together. lmfit is used at the edges — the result converts to
   :class:`lmfit.Parameters` — not inside the loop, where its parameter
   objects would cost more than the integration.
 * Standard errors come from (JᵀJ)⁻¹, scaled by the reduced χ² when the noise
-  is estimated from the fit and unscaled when it is declared.
+  is estimated from the fit and unscaled when it is declared. The
+  log-likelihood and AIC, AICc and BIC follow :mod:`kinfit.estimation.likelihood`.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
 
 from kinfit.core.defaults import DEFAULT_STARTS
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.mechanism import format_rate_law
 from kinfit.estimation.linear_unknowns import resolve_signals
+from kinfit.estimation.likelihood import (count_parameters, gaussian_log_likelihood,
+                                          information_criteria)
 from kinfit.estimation.residual_checks import check_residuals
-from kinfit.numerics.problem import FAILED_RESIDUAL, build_problem, information_criteria
-from kinfit.numerics.integrate import Trajectory, describe_method
-from kinfit.inputs.temperature import ENERGY_UNIT
+from kinfit.estimation.levenberg_marquardt import local_fit
+from kinfit.estimation.scale import ScaledProblem, fit_scale
+from kinfit.inputs.mechanism import format_rate_law
 from kinfit.inputs.parameters import Role
+from kinfit.inputs.temperature import ENERGY_UNIT
+from kinfit.numerics.problem import build_problem
+from kinfit.numerics.integrate import Trajectory, describe_method
 
-__all__ = ["FitResult", "fit"]
+if TYPE_CHECKING:
+    from kinfit.estimation.residual_checks import TraceCheck
+    from kinfit.inputs.experiment import Experiment
+    from kinfit.inputs.mechanism import Mechanism
+    from kinfit.numerics.problem import Problem
+    from kinfit.estimation.linear_unknowns import SignalFit
+
+__all__ = ["FitResult", "ProblemSettings", "fit", "parameter_unit"]
 
 _SCREEN_RHS = 5_000
-_STEP_CAP_LOG = 2.0   # largest move of log10 k in one iteration (decades)
-_STEP_CAP_REL = 1.0   # largest move elsewhere, relative to the value (or its scale)
-_LN10 = math.log(10.0)
+
+
+@dataclass(frozen=True)
+class ProblemSettings:
+    """How the fit's residual problem was built, besides the model and the data.
+
+    The profile likelihood and the sampler rebuild the problem from these, so
+    that they work on the problem that was fitted.
+
+    Attributes
+    ----------
+    method : str
+        Integrator (see :func:`kinfit.numerics.integrate.integrate_flat`).
+    components : int or str or None
+        For full-spectrum data, the override of the experiment's
+        ``components`` ("auto", "all" or a number); ``None`` keeps the
+        experiment's.
+    """
+
+    method: str = "auto"
+    components: int | str | None = None
+
+    def build(self, mechanism: Mechanism, experiment: Experiment) -> Problem:
+        """The :class:`~kinfit.numerics.problem.Problem` of `mechanism` and `experiment`."""
+        return build_problem(mechanism, experiment, method=self.method,
+                             components=self.components)
 
 
 @dataclass(frozen=True)
@@ -64,8 +98,8 @@ class FitResult:
         Standard errors; ``None`` for fixed or unidentifiable parameters.
     units : dict of str to str or None
         Unit of each parameter in the experiment's units ("" if dimensionless).
-    roles : dict of str to str
-        "rate constant", "order", "initial concentration", "time offset".
+    roles : dict of str to Role
+        Rate constant, order, initial concentration, time offset, ...
     free_names : tuple of str
         Fitted parameters, the order of `covariance` and `correlation`.
     covariance, correlation : ndarray [n_free, n_free] or None
@@ -82,7 +116,7 @@ class FitResult:
         Estimated noise standard deviation sqrt(χ²/(N - p)) when not declared.
     noise_declared : bool
     log_likelihood, aic, aicc, bic : float
-        See :mod:`kinfit.objective` for the conventions.
+        See :mod:`kinfit.estimation.likelihood` for the conventions.
     overall_orders : dict of str to float or None
         Overall order of each rate constant's rate law at the fitted values.
     curves : tuple of Trajectory
@@ -94,24 +128,31 @@ class FitResult:
     n_evaluations, n_integrations, n_failed : int
         Model evaluations (parameter sets), integrator calls, failed sets.
     method : str
-        Integrator used.
+        Integrator used, in words.
+    at_bounds : tuple of str
+        Fitted parameters that ended at a bound.
+    bounds : dict of str to (float, float, bool)
+        (min, max, vary) of every parameter.
     signals : SignalFit or None
         For spectrometer signals: absorptivities, offsets and drifts solved
         by variable projection with standard errors from the full Jacobian,
         resolved spectra and the SVD of full-spectrum data (see
-        :mod:`kinfit.spectra`).
+        :mod:`kinfit.numerics.signal_model`).
     residual_checks : tuple of TraceCheck
         Runs test and lag-1 autocorrelation of each trace's residuals (see
         :mod:`kinfit.estimation.residual_checks`).
+    problem_settings : ProblemSettings
+        What the residual problem was built with (integrator, spectral
+        components); the profile and the sampler rebuild it from these.
     """
 
-    mechanism: object
-    experiment: object
-    values: dict
-    stderr: dict
-    units: dict
-    roles: dict
-    free_names: tuple
+    mechanism: Mechanism
+    experiment: Experiment
+    values: dict[str, float]
+    stderr: dict[str, float | None]
+    units: dict[str, str | None]
+    roles: dict[str, Role]
+    free_names: tuple[str, ...]
     covariance: np.ndarray | None
     correlation: np.ndarray | None
     residuals: np.ndarray
@@ -125,21 +166,22 @@ class FitResult:
     aic: float
     aicc: float
     bic: float
-    overall_orders: dict
-    curves: tuple
+    overall_orders: dict[str, float | None]
+    curves: tuple[Trajectory, ...]
     success: bool
     message: str
-    warnings: tuple = ()
+    warnings: tuple[str, ...] = ()
     starts: int = 1
     starts_at_best: int = 1
     n_evaluations: int = 0
     n_integrations: int = 0
     n_failed: int = 0
     method: str = "auto"
-    at_bounds: tuple = ()
-    bounds: dict = field(default_factory=dict, repr=False)
-    signals: object = None
-    residual_checks: tuple = ()
+    at_bounds: tuple[str, ...] = ()
+    bounds: dict[str, tuple[float, float, bool]] = field(default_factory=dict, repr=False)
+    signals: SignalFit | None = None
+    residual_checks: tuple[TraceCheck, ...] = ()
+    problem_settings: ProblemSettings = ProblemSettings()
 
     @property
     def reduced_chi2(self):
@@ -239,103 +281,6 @@ class FitResult:
         }
 
 
-# ----------------------------------------------------------------- layout
-
-class _Layout:
-    """Free parameters on the fitting scale (log10 for rate constants)."""
-
-    def __init__(self, problem):
-        self.problem = problem
-        params = problem.parameters
-        self.base = np.array([p.value for p in params])
-        self.free = [i for i, p in enumerate(params) if p.vary]
-        self.names = tuple(params[i].name for i in self.free)
-        self.log = np.array([params[i].role == Role.RATE_CONSTANT for i in self.free], bool)
-        lo, hi, u0, box_lo, box_hi, scale = [], [], [], [], [], []
-        t_max = max(run.t_max for run in problem.experiment.runs)
-        for i in self.free:
-            p = params[i]
-            if p.role == Role.RATE_CONSTANT:
-                a = math.log10(p.min) if p.min > 0 else -math.inf
-                b = math.log10(p.max) if math.isfinite(p.max) else math.inf
-                u = math.log10(p.value)
-                half, s = 2.0, 1.0
-            else:
-                a, b, u = p.min, p.max, p.value
-                if p.role == Role.ORDER:
-                    half, s = 1.5, 1.0
-                elif p.role == Role.INITIAL:
-                    half, s = 0.5 * abs(u) or 1.0, abs(u) or 1.0
-                elif p.role == Role.TIME_OFFSET:
-                    half, s = 0.05 * t_max, 0.01 * t_max
-                else:
-                    half, s = max(abs(u), 1.0), max(abs(u), 1.0)
-            lo.append(a)
-            hi.append(b)
-            u0.append(u)
-            box_lo.append(a if math.isfinite(a) else u - half)
-            box_hi.append(b if math.isfinite(b) else u + half)
-            scale.append(s)
-        self.lo, self.hi, self.u0 = np.array(lo), np.array(hi), np.array(u0)
-        self.box_lo, self.box_hi = np.array(box_lo), np.array(box_hi)
-        self.scale = np.array(scale)
-
-    def to_values(self, u):
-        """Fitting-scale rows [n_sets, n_free] -> full parameter rows [n_sets, n_params]."""
-        u = np.atleast_2d(u)
-        out = np.repeat(self.base[None], u.shape[0], axis=0)
-        out[:, self.free] = np.where(self.log, 10.0 ** np.clip(u, -300.0, 300.0), u)
-        return out
-
-    def natural_slope(self, u):
-        """d(value)/d(u) for each free parameter [n_free]."""
-        return np.where(self.log, _LN10 * 10.0 ** u, 1.0)
-
-
-class _Evaluator:
-    """Evaluates residuals (and their exact Jacobian) on the fitting scale.
-
-    One integration gives both the residuals and, through forward
-    sensitivities, their Jacobian; the last one is cached so that the
-    optimiser's separate calls for residuals and Jacobian at one point cost a
-    single integration. Counts evaluations and integrations for the report.
-    """
-
-    def __init__(self, problem, layout):
-        self.problem, self.layout = problem, layout
-        self.evaluations = self.integrations = self.failed = 0
-        self.n_compiled = self.n_stiff = self.n_implicit = 0
-        self._cache_u = None
-        self._cache = None
-
-    def _count(self, n_sets, ok, info):
-        self.integrations += 1
-        self.evaluations += n_sets
-        self.failed += int((~ok).sum())
-        self.n_compiled += info.n_compiled
-        self.n_stiff += info.n_stiff
-        self.n_implicit += info.n_implicit
-
-    def residuals(self, u, max_rhs=None, fallback=True):
-        """Residual rows [n_sets, n_points] for fitting-scale rows `u` (no Jacobian)."""
-        values = self.layout.to_values(u)
-        pred, ok, _, info = self.problem.evaluate(values, max_rhs=max_rhs, fallback=fallback)
-        self._count(values.shape[0], ok, info)
-        return self.problem._weigh(pred, ok)
-
-    def both(self, u):
-        """(residuals [n_points], Jacobian [n_points, n_free]) at one point, cached."""
-        u = np.asarray(u, dtype=float)
-        if self._cache_u is not None and np.array_equal(u, self._cache_u):
-            return self._cache
-        values = self.layout.to_values(u)
-        res, jac, ok, info = self.problem.residuals_jacobian(values)
-        self._count(1, np.array([ok]), info)
-        jac_u = jac[:, self.layout.free] * self.layout.natural_slope(u)[None, :]
-        self._cache_u, self._cache = u.copy(), (res, jac_u)
-        return self._cache
-
-
 # -------------------------------------------------------------------- fit
 
 def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="auto",
@@ -352,7 +297,7 @@ def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="auto",
     seed : int
         Seed of the start screen (the fit is otherwise deterministic).
     method : str
-        Integrator, see :func:`kinfit.simulate.integrate_flat` (default
+        Integrator, see :func:`kinfit.numerics.integrate.integrate_flat` (default
         "auto": compiled explicit, LSODA where stiff).
     max_evaluations : int, optional
         Bound on residual evaluations per start (default 100 (p + 1)).
@@ -366,38 +311,40 @@ def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="auto",
     """
     if not isinstance(starts, int) or starts < 1:
         raise KinfitError(f"starts must be a whole number of at least 1, got {starts!r}")
-    problem = build_problem(mechanism, experiment, method=method, components=components)
-    layout = _Layout(problem)
-    evaluator = _Evaluator(problem, layout)
-    n_points, n_free = problem.observation.n_points, len(layout.free) + problem.n_linear
+    settings = ProblemSettings(method=method, components=components)
+    problem = settings.build(mechanism, experiment)
+    scale = fit_scale(problem)
+    evaluator = ScaledProblem(problem, scale)
+    n_points, n_free = problem.observation.n_points, count_parameters(problem)
     if n_free >= n_points:
         raise KinfitError(f"{experiment.source}: {n_free} fitted parameters but only {n_points} "
                           f"data points; fix some parameters or add data")
 
-    if not layout.free:
-        outcomes = [(layout.u0, float(np.sum(evaluator.residuals(layout.u0)[0] ** 2)), True,
+    if not scale.n_model:
+        outcomes = [(scale.start, float(np.sum(evaluator.residuals(scale.start)[0] ** 2)), True,
                      "no free parameters: evaluated at the given values", 0)]
     else:
-        outcomes = [_local_fit(evaluator, u, max_evaluations)
-                    for u in _start_points(evaluator, layout, starts, seed)]
+        outcomes = [local_fit(evaluator, u, max_evaluations)
+                    for u in _start_points(evaluator, starts, seed)]
     best = min(outcomes, key=lambda o: o[1] if math.isfinite(o[1]) else math.inf)
     u_best, chi2_best, success, message, failed = best
     tol = 1e-6 * max(chi2_best, 1e-300) + 1e-12
     at_best = sum(1 for o in outcomes if o[1] <= chi2_best + tol)
-    return _result(problem, layout, evaluator, u_best, success, message, len(outcomes),
-                   at_best, failed)
+    return _result(evaluator, u_best, success, message, len(outcomes), at_best, failed,
+                   settings)
 
 
-def _start_points(evaluator, layout, starts, seed):
+def _start_points(evaluator, starts, seed):
     """The model file's start plus the best points of a Latin-hypercube screen."""
-    points = [layout.u0]
+    scale = evaluator.scale
+    points = [scale.start]
     if starts == 1:
         return points
     from scipy.stats import qmc
 
     n_screen = max(16, 4 * starts)
-    sampler = qmc.LatinHypercube(d=layout.u0.size, seed=np.random.default_rng(seed))
-    cand = layout.box_lo + sampler.random(n_screen) * (layout.box_hi - layout.box_lo)
+    sampler = qmc.LatinHypercube(d=scale.n_dim, seed=np.random.default_rng(seed))
+    cand = scale.box_lower + sampler.random(n_screen) * (scale.box_upper - scale.box_lower)
     # All candidates in one call, with a small work bound and no hand-over to
     # the implicit integrator: a candidate whose equations are very hard to
     # integrate is a poor start and is dropped cheaply.
@@ -413,164 +360,122 @@ def _start_points(evaluator, layout, starts, seed):
     return points
 
 
-def _local_fit(evaluator, u0, max_evaluations):
-    """Refine one start by Levenberg–Marquardt with the exact Jacobian.
+# ----------------------------------------------------------------- result
 
-    A compact bounded Levenberg–Marquardt loop on plain arrays (Marquardt's
-    diagonal scaling, Nielsen's damping update, steps projected onto the
-    bounds with variables held at an active bound): with exact Jacobians the
-    problems are small and well scaled, and a loop in a few lines of numpy
-    costs far less per iteration than a general-purpose solver. It stops when
-    a further Gauss–Newton step would lower χ² by less than 1e-10 σ̂², that is
-    move the parameters by less than about 1e-5 of their standard errors. lmfit
-    stays at the edges (see :meth:`FitResult.lmfit_parameters`).
+class _Statistics(NamedTuple):
+    """Goodness of fit at the optimum."""
 
-    Returns
-    -------
-    tuple
-        (u, chi2, success, message, number of failed evaluations on the way)
-    """
-    layout = evaluator.layout
-    lo, hi = layout.lo, layout.hi
-    failed_before = evaluator.failed
-    u = np.clip(np.asarray(u0, dtype=float), lo, hi)
-    n = u.size
-    dof = max(evaluator.problem.observation.n_points - n - evaluator.problem.n_linear, 1)
-    max_evaluations = max_evaluations or 100 * (n + 1)
-    res, jac = evaluator.both(u)
-    chi2 = float(res @ res)
-    if not np.isfinite(chi2) or np.any(res == FAILED_RESIDUAL):
-        return (u, math.inf, False, "the model could not be integrated at the starting values",
-                evaluator.failed - failed_before)
-    damping, growth = 1e-3, 2.0
-    message, success = "stopped after the largest number of evaluations", False
-    evaluations = 1
-    while evaluations < max_evaluations:
-        grad = jac.T @ res
-        normal = jac.T @ jac
-        free = ~(((u <= lo) & (grad > 0)) | ((u >= hi) & (grad < 0)))
-        if not free.any():
-            message, success = "converged at the bounds", True
-            break
-        nf = normal[np.ix_(free, free)]
-        gf = grad[free]
-        scale = 1.0 if evaluator.problem.sigma_known else chi2 / dof
-        gauss_newton = np.linalg.lstsq(nf, -gf, rcond=None)[0]
-        if -float(gf @ gauss_newton) < 1e-10 * max(scale, 1e-300):
-            message = ("converged: a further Gauss-Newton step would move the parameters by "
-                       "less than 1e-5 standard errors")
-            success = True
-            break
-        diag = np.diag(nf).copy()
-        diag[diag <= 0] = 1.0
-        # a direction the data do not see (a parameter whose effect the linear
-        # unknowns of signals take up) must not get an unbounded step
-        diag = np.maximum(diag, 1e-10 * diag.max())
-        try:
-            step_f = np.linalg.solve(nf + damping * np.diag(diag), -gf)
-        except np.linalg.LinAlgError:
-            step_f = np.linalg.lstsq(nf + damping * np.diag(diag), -gf, rcond=None)[0]
-        step = np.zeros(n)
-        step[free] = step_f
-        # keep each move modest (a decade in a rate constant, about the size of
-        # the value elsewhere), so that a first step from a poor start cannot
-        # leap onto a plateau where the data no longer constrain anything
-        cap = np.where(layout.log, _STEP_CAP_LOG,
-                       _STEP_CAP_REL * np.maximum(layout.scale, np.abs(u)))
-        over = np.max(np.abs(step) / cap)
-        if over > 1.0:
-            step /= over
-        trial = np.clip(u + step, lo, hi)
-        step = trial - u
-        predicted = -(2.0 * float(step @ grad) + float(step @ normal @ step))
-        if not np.any(step) or predicted <= 0:
-            damping *= growth
-            growth *= 2.0
-            if damping > 1e16:
-                message, success = "converged: no step lowers χ² any further", True
-                break
-            continue
-        res_new, jac_new = evaluator.both(trial)
-        evaluations += 1
-        chi2_new = float(res_new @ res_new)
-        if np.isfinite(chi2_new) and chi2_new < chi2 and not np.any(res_new == FAILED_RESIDUAL):
-            rho = (chi2 - chi2_new) / predicted
-            u, res, jac, chi2 = trial, res_new, jac_new, chi2_new
-            damping *= max(1.0 / 3.0, 1.0 - (2.0 * rho - 1.0) ** 3)
-            growth = 2.0
-        else:
-            damping *= growth
-            growth *= 2.0
-            if damping > 1e16:
-                message, success = "converged: no step lowers χ² any further", True
-                break
-    if not success:
-        return _trust_region_fit(evaluator, u, max_evaluations, failed_before)
-    return u, chi2, success, message, evaluator.failed - failed_before
+    chi2: float
+    dof: int
+    sigma: float | None         # estimated noise σ̂ = sqrt(χ²/(N − p)); None when declared
+    noise_scale: float          # factor of (JᵀJ)⁻¹: 1 when declared, else χ²/(N − p)
+    log_likelihood: float
+    criteria: dict
 
 
-def _trust_region_fit(evaluator, u0, max_evaluations, failed_before):
-    """Fallback when Levenberg–Marquardt has not converged: scipy's trust-region
-    reflective least squares from the best point so far."""
-    from scipy.optimize import least_squares
-
-    layout = evaluator.layout
-    out = least_squares(lambda u: evaluator.both(u)[0], u0, jac=lambda u: evaluator.both(u)[1],
-                        bounds=(layout.lo, layout.hi), method="trf", x_scale="jac",
-                        ftol=1e-10, xtol=1e-10, gtol=1e-10, max_nfev=max_evaluations)
-    res = evaluator.both(out.x)[0]
-    chi2 = float(res @ res)
-    failed = evaluator.failed - failed_before
-    if not np.isfinite(chi2) or np.any(res == FAILED_RESIDUAL):
-        return (out.x, math.inf, False, "the model could not be integrated at the final values",
-                failed)
-    return out.x, chi2, bool(out.success), f"trust-region fallback: {out.message}", failed
-
-
-def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, failed):
-    values_row = layout.to_values(u)[0]
-    names = problem.names
-    values = {n: float(v) for n, v in zip(names, values_row)}
-    if layout.free:
-        res, jac = evaluator.both(u)
+def _result(evaluator, u, success, message, n_starts, at_best, failed, settings):
+    """Assemble the :class:`FitResult` at the best point `u` of the fitting scale."""
+    problem, scale = evaluator.problem, evaluator.scale
+    values_row = scale.to_values(u)[0]
+    values = {n: float(v) for n, v in zip(problem.names, values_row)}
+    if scale.n_model:
+        res, jac = evaluator.residuals_jacobian(u)
     else:
         res, jac = evaluator.residuals(u)[0], None
     pred = res * problem.observation.sigma if problem.sigma_known else res.copy()
     pred = pred + problem.observation.values
-    n_points, n_free = res.size, len(layout.free) + problem.n_linear
+    stats = _statistics(problem, res)
+    covariance, correlation, stderr, singular = _uncertainty(problem, scale, jac, u,
+                                                             stats.noise_scale)
+    at_bounds = _at_bounds(scale, u)
+    signals = None
+    if problem.signal is not None:
+        signals = resolve_signals(problem, values_row, covariance,
+                                  scale.free_index.tolist(), stats.noise_scale)
+    mech, exp = problem.mechanism, problem.experiment
+    overall = mech.overall_orders(values)
+    units, roles, unit_warnings = _units_and_roles(problem, overall)
+    warnings = singular + _fit_warnings(
+        problem, values, at_bounds, n_starts, at_best, stats,
+        () if signals is None else signals.warnings, failed, success, message) + unit_warnings
+    return FitResult(
+        mechanism=mech, experiment=exp, values=values, stderr=stderr, units=units,
+        roles=roles, free_names=scale.names, covariance=covariance, correlation=correlation,
+        residuals=res, predicted=pred, n_points=res.size, n_free=count_parameters(problem),
+        chi2=stats.chi2, sigma=stats.sigma, noise_declared=problem.sigma_known,
+        log_likelihood=stats.log_likelihood, aic=stats.criteria["aic"],
+        aicc=stats.criteria["aicc"], bic=stats.criteria["bic"], overall_orders=overall,
+        curves=_curves(problem, values_row), success=success, message=message,
+        warnings=tuple(warnings), starts=n_starts, starts_at_best=at_best,
+        n_evaluations=evaluator.evaluations, n_integrations=evaluator.integrations,
+        n_failed=evaluator.failed,
+        method=describe_method(problem.method, evaluator.n_stiff, evaluator.n_implicit,
+                               tally=True),
+        at_bounds=at_bounds,
+        bounds={p.name: (p.min, p.max, p.vary) for p in problem.parameters}, signals=signals,
+        residual_checks=tuple(check_residuals(exp, res)), problem_settings=settings)
+
+
+def _statistics(problem, res):
+    """χ², degrees of freedom, σ̂, log-likelihood and information criteria."""
+    n_free = count_parameters(problem)
     chi2 = float(res @ res)
     declared = problem.sigma_known
-    dof = n_points - n_free
+    dof = res.size - n_free
     sigma = None if declared else math.sqrt(chi2 / dof)
-    warnings = []
+    log_lik = float(gaussian_log_likelihood(res, problem.observation.sigma)[0])
+    return _Statistics(chi2=chi2, dof=dof, sigma=sigma,
+                       noise_scale=1.0 if declared else chi2 / dof, log_likelihood=log_lik,
+                       criteria=information_criteria(log_lik, res.size, n_free))
 
+
+def _uncertainty(problem, scale, jac, u, noise_scale):
+    """Natural-scale covariance, correlation and standard errors of the free parameters.
+
+    Returns
+    -------
+    (covariance or None, correlation or None, stderr dict, list of warnings)
+    """
     covariance = correlation = None
-    stderr = {n: None for n in names}
-    at_bounds = tuple(n for n, x, a, b in zip(layout.names, u, layout.lo, layout.hi)
-                      if (math.isfinite(a) and x - a <= 1e-6 * max(1.0, abs(a)))
-                      or (math.isfinite(b) and b - x <= 1e-6 * max(1.0, abs(b))))
-    if layout.free:
-        if problem.signal is not None:
-            jac = _kaufman_jacobian(problem, layout, u)
-        covariance, singular = _covariance(jac, layout.natural_slope(u),
-                                           1.0 if declared else chi2 / dof, layout.names)
-        if singular:
-            warnings.append("the data cannot pin down all parameters together (the Jacobian "
-                            f"is singular): {singular}; fix one of them or add runs that "
-                            "separate them")
-        if covariance is not None:
-            se = np.sqrt(np.clip(np.diag(covariance), 0.0, None))
-            for n, s in zip(layout.names, se):
-                stderr[n] = float(s) if np.isfinite(s) else None
-            with np.errstate(invalid="ignore", divide="ignore"):
-                correlation = covariance / np.outer(se, se)
+    stderr = {n: None for n in problem.names}
+    if not scale.n_model:
+        return covariance, correlation, stderr, []
+    if problem.signal is not None:
+        jac = _kaufman_jacobian(problem, scale, u)
+    covariance, singular = _covariance(jac, scale, u, noise_scale)
+    warnings = []
+    if singular:
+        warnings.append("the data cannot pin down all parameters together (the Jacobian "
+                        f"is singular): {singular}; fix one of them or add runs that "
+                        "separate them")
+    if covariance is not None:
+        se = np.sqrt(np.clip(np.diag(covariance), 0.0, None))
+        for n, s in zip(scale.names, se):
+            stderr[n] = float(s) if np.isfinite(s) else None
+        with np.errstate(invalid="ignore", divide="ignore"):
+            correlation = covariance / np.outer(se, se)
+    return covariance, correlation, stderr, warnings
+
+
+def _at_bounds(scale, u):
+    """Names of the free parameters within 1e-6 (relative) of a finite bound."""
+    return tuple(n for n, x, a, b in zip(scale.names, u, scale.lower, scale.upper)
+                 if (math.isfinite(a) and x - a <= 1e-6 * max(1.0, abs(a)))
+                 or (math.isfinite(b) and b - x <= 1e-6 * max(1.0, abs(b))))
+
+
+def _fit_warnings(problem, values, at_bounds, n_starts, at_best, stats, signal_warnings,
+                  failed, success, message):
+    """Bounds, starts, the χ² test of declared noise, signals, failures, convergence."""
+    warnings = []
     for n in at_bounds:
         warnings.append(f"{n} = {values[n]:.4g} is at a bound; its standard error assumes it "
                         f"is not, and the true optimum may lie beyond")
     if n_starts > 1 and at_best < max(2, n_starts // 2):
         warnings.append(f"only {at_best} of {n_starts} starting points reached the best fit; "
                         f"the least-squares surface has other minima (try more starts)")
-    if declared and dof > 0:
+    chi2, dof = stats.chi2, stats.dof
+    if problem.sigma_known and dof > 0:
         from scipy.stats import chi2 as chi2_dist
 
         p_high = chi2_dist.sf(chi2, dof)
@@ -581,83 +486,81 @@ def _result(problem, layout, evaluator, u, success, message, n_starts, at_best, 
         elif chi2_dist.cdf(chi2, dof) < 1e-3:
             warnings.append(f"χ²/(N−p) = {chi2 / dof:.3g}: the residuals are smaller than the "
                             f"declared noise; the noise may be overestimated")
-    signals = None
-    if problem.signal is not None:
-        signals = resolve_signals(problem, values_row, covariance, layout.free,
-                                  1.0 if declared else chi2 / dof)
-        warnings += list(signals.warnings)
+    warnings += list(signal_warnings)
     if failed:
         warnings.append(f"{failed} model evaluation(s) failed to integrate on the way to the "
                         f"best fit and were treated as very poor fits")
     if not success:
         warnings.append(f"the optimiser did not report convergence: {message}")
-
-    log_lik = float(problem.log_likelihood(res)[0])
-    crit = information_criteria(log_lik, n_points, n_free)
-    mech, exp = problem.mechanism, problem.experiment
-    overall = mech.overall_orders(values)
-    units, roles = {}, {}
-    for p in problem.parameters:
-        roles[p.name] = p.role
-        if p.role == Role.RATE_CONSTANT:
-            units[p.name] = exp.units.rate_constant(overall.get(p.name))
-        elif p.role == Role.INITIAL:
-            units[p.name] = exp.units.concentration
-        elif p.role == Role.TIME_OFFSET:
-            units[p.name] = exp.units.time
-        elif p.role in (Role.ACTIVATION_ENERGY, Role.ACTIVATION_ENTHALPY):
-            units[p.name] = ENERGY_UNIT
-        else:
-            units[p.name] = ""
-    for name, order in overall.items():
-        if order is None:
-            warnings.append(f"{name} appears in rate laws of different overall order, so it "
-                            f"has no single unit")
-    return FitResult(
-        mechanism=mech, experiment=exp, values=values, stderr=stderr, units=units,
-        roles=roles, free_names=layout.names, covariance=covariance, correlation=correlation,
-        residuals=res, predicted=pred, n_points=n_points, n_free=n_free, chi2=chi2,
-        sigma=sigma, noise_declared=declared, log_likelihood=log_lik, aic=crit["aic"],
-        aicc=crit["aicc"], bic=crit["bic"], overall_orders=overall,
-        curves=_curves(problem, values_row), success=success, message=message,
-        warnings=tuple(warnings), starts=n_starts, starts_at_best=at_best,
-        n_evaluations=evaluator.evaluations, n_integrations=evaluator.integrations,
-        n_failed=evaluator.failed,
-        method=describe_method(problem.method, evaluator.n_stiff, evaluator.n_implicit,
-                               tally=True),
-        at_bounds=at_bounds,
-        bounds={p.name: (p.min, p.max, p.vary) for p in problem.parameters}, signals=signals,
-        residual_checks=tuple(check_residuals(exp, res)))
+    return warnings
 
 
-def _kaufman_jacobian(problem, layout, u):
-    """Fitting-scale Jacobian with Kaufman's projection for signals: its JᵀJ is the
-    Schur complement of the full normal matrix of the kinetic parameters and the
-    linear unknowns, so the covariance is that of the full Jacobian (see
-    :mod:`kinfit.spectra`)."""
-    from dataclasses import replace
+# Unit of each role, from the experiment's units and the overall order of the
+# rate law a rate constant belongs to; roles not listed are dimensionless.
+_UNIT_OF_ROLE = {
+    Role.RATE_CONSTANT: lambda units, order: units.rate_constant(order),
+    Role.INITIAL: lambda units, order: units.concentration,
+    Role.TIME_OFFSET: lambda units, order: units.time,
+    Role.NOISE: lambda units, order: units.concentration,
+    Role.ACTIVATION_ENERGY: lambda units, order: ENERGY_UNIT,
+    Role.ACTIVATION_ENTHALPY: lambda units, order: ENERGY_UNIT,
+}
 
-    plain = replace(problem, signal=problem.signal.kaufman())
-    jac = plain.residuals_jacobian(layout.to_values(u))[1]
-    return jac[:, layout.free] * layout.natural_slope(u)[None, :]
+
+def parameter_unit(role, units, overall_order=None):
+    """Unit of a parameter of `role` in the experiment's `units` ("" if dimensionless).
+
+    Parameters
+    ----------
+    role : Role
+    units : Units
+        The experiment's units.
+    overall_order : float or None
+        For a rate constant, the overall order of its rate law (None when it
+        has none: the unit is then left open).
+    """
+    rule = _UNIT_OF_ROLE.get(role)
+    return "" if rule is None else rule(units, overall_order)
 
 
-def _covariance(jac, slope, scale, names):
+def _units_and_roles(problem, overall):
+    """Unit and role of every parameter, and warnings about units that do not exist."""
+    units = {p.name: parameter_unit(p.role, problem.experiment.units, overall.get(p.name))
+             for p in problem.parameters}
+    roles = {p.name: p.role for p in problem.parameters}
+    warnings = [f"{name} appears in rate laws of different overall order, so it has no "
+                f"single unit" for name, order in overall.items() if order is None]
+    return units, roles, warnings
+
+
+def _covariance(jac, scale, u, noise_scale):
     """Natural-scale covariance from a fitting-scale Jacobian; (cov, singular names)."""
     jtj = jac.T @ jac
     try:
         # scale columns to unit norm so the condition number reflects identifiability
         norms = np.sqrt(np.diag(jtj))
         if np.any(norms == 0):
-            zero = ", ".join(n for n, v in zip(names, norms) if v == 0)
+            zero = ", ".join(n for n, v in zip(scale.names, norms) if v == 0)
             return None, f"{zero} do(es) not change the model at all"
         scaled = jtj / np.outer(norms, norms)
         if np.linalg.cond(scaled) > 1e14:
             return None, "near-linear dependence between parameters"
-        cov_u = np.linalg.inv(scaled) / np.outer(norms, norms) * scale
+        cov_u = np.linalg.inv(scaled) / np.outer(norms, norms) * noise_scale
     except np.linalg.LinAlgError:
         return None, "the normal matrix cannot be inverted"
-    return cov_u * np.outer(slope, slope), ""
+    return scale.covariance_to_natural(cov_u, u), ""
+
+
+def _kaufman_jacobian(problem, scale, u):
+    """Fitting-scale Jacobian with Kaufman's projection for signals: its JᵀJ is the
+    Schur complement of the full normal matrix of the kinetic parameters and the
+    linear unknowns, so the covariance is that of the full Jacobian (see
+    :mod:`kinfit.numerics.signal_model`)."""
+    from dataclasses import replace
+
+    plain = replace(problem, signal=problem.signal.kaufman())
+    jac = plain.residuals_jacobian(scale.to_values(u))[1]
+    return scale.jacobian_to_scale(jac, u)
 
 
 def _curves(problem, values_row, n=200):

@@ -1,27 +1,21 @@
-"""Posterior sampling of rate constants, orders and noise with emcee.
+"""Posterior sampling of rate constants, orders and noise with emcee: the front door.
 
-:func:`sample` is the front door: it fits (unless given a fit), starts an
-ensemble of walkers around the least-squares optimum, runs emcee's
-affine-invariant ensemble sampler, checkpoints the chain, diagnoses
-convergence (:mod:`kinfit.diagnostics`), profiles the likelihood
-(:mod:`kinfit.profile`) and returns a :class:`Posterior` of plain numbers.
+:func:`sample` fits (unless given a fit), rebuilds the residual problem as
+the fit built it (integrator, spectral components), starts an ensemble of
+walkers around the least-squares optimum and runs emcee's ensemble sampler
+(:mod:`kinfit.estimation.sampler`), checkpoints the chain
+(:mod:`kinfit.estimation.chains`), diagnoses convergence
+(:mod:`kinfit.estimation.diagnostics`), profiles the likelihood
+(:mod:`kinfit.estimation.profile`) and returns a :class:`Posterior` of plain
+numbers, with the covariance, profile and posterior intervals side by side.
 
 What is sampled
 ---------------
-The free parameters on the fitting scale (log10 for rate constants), plus
-the noise levels when the noise is not declared; priors and the noise
-conventions are described in :mod:`kinfit.space` and :mod:`kinfit.priors`.
-The log-probability is vectorised: emcee (``vectorize=True``) hands over all
-the walkers it is moving, and their parameter sets are integrated together
-through :meth:`Problem.residuals`. Parameter sets outside the prior's
-support are not integrated; a set whose integration fails gets ln p = −inf
-(rejected).
-
-Starting point
---------------
-Walkers start from draws of the fit's Gaussian approximation (its
-covariance on the fitting scale, half width), so burn-in is short; noise
-levels start at each species' RMS residual.
+The free parameters on the fitting scale (log10 for rate constants,
+:mod:`kinfit.estimation.scale`), plus the noise levels when the noise is not
+declared; priors and the noise conventions are described in
+:mod:`kinfit.estimation.space`, :mod:`kinfit.inputs.priors` and
+:mod:`kinfit.estimation.likelihood`.
 
 Checkpoints and resume
 ----------------------
@@ -36,41 +30,41 @@ Steps after the last checkpoint of a killed process are recomputed.
 
 from __future__ import annotations
 
-import hashlib
-import io
-import json
 import math
-import sys
-import time
 from dataclasses import dataclass, replace
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from kinfit.core.defaults import (CHECKPOINT_EVERY, DEFAULT_MOVES, DEFAULT_STARTS, DEFAULT_STEPS,
                                   DEFAULT_WALKERS)
-from kinfit.core.atomic import write_bytes
-from kinfit.estimation.diagnostics import diagnose
 from kinfit.core.errors import KinfitError
-from kinfit.estimation.least_squares import fit
-from kinfit.numerics.problem import FAILED_RESIDUAL, build_problem
+from kinfit.estimation.chains import (CHAIN_FILE, ChainState, check_resumable, fingerprint,
+                                      load_chain, write_chain)
+from kinfit.estimation.diagnostics import diagnose
+from kinfit.estimation.least_squares import FitResult, fit, parameter_unit
 from kinfit.estimation.profile import profile_intervals
+from kinfit.estimation.sampler import LogPosterior, emcee_moves, run_ensemble, start_ball
 from kinfit.estimation.space import parameter_space
 from kinfit.inputs.parameters import Role
 
-__all__ = ["Posterior", "Settings", "ChainState", "RunBands", "sample", "run_ensemble",
-           "load_chain", "write_chain", "summarise", "compare_intervals",
-           "CHAIN_FILE", "MOVES"]
+if TYPE_CHECKING:
+    from kinfit.estimation.diagnostics import Diagnostics
+    from kinfit.estimation.profile import Profiles
+    from kinfit.estimation.space import ParameterSpace
+    from kinfit.inputs.experiment import Experiment
+    from kinfit.inputs.mechanism import Mechanism
+    from kinfit.inputs.priors import Prior
 
-CHAIN_FILE = "chain.npz"
-MOVES = ("de", "stretch")
+__all__ = ["Posterior", "Settings", "RunBands", "sample", "summarise", "compare_intervals"]
+
 Z95 = 1.959963984540054          # scipy.stats.norm.ppf(0.975)
 # Intervals "disagree markedly" when one side of the profile or posterior interval
 # differs from the covariance interval's half width by more than this fraction
 # (kinfit's choice; no standard exists).
 DISAGREEMENT = 0.25
 _BAND_DRAWS = 200
-_FORMAT_VERSION = 1
 
 
 @dataclass(frozen=True)
@@ -92,41 +86,6 @@ class Settings:
 
 
 @dataclass(frozen=True)
-class ChainState:
-    """A chain in progress: everything a checkpoint holds.
-
-    Attributes
-    ----------
-    chain : ndarray [n_done, n_walkers, n_dim]
-        Walker positions after each step, on the inference scale.
-    log_prob : ndarray [n_done, n_walkers]
-    accepted : ndarray [n_walkers] of int
-        Accepted proposals of each walker.
-    start : ndarray [n_walkers, n_dim]
-    start_log_prob : ndarray [n_walkers]
-    random_state : tuple
-        State of the sampler's ``numpy.random.RandomState`` after the last step.
-    elapsed : float
-        Wall time spent sampling, seconds (interrupted and resumed runs together).
-    n_evaluations : int
-        Parameter sets whose log-probability was computed.
-    """
-
-    chain: np.ndarray
-    log_prob: np.ndarray
-    accepted: np.ndarray
-    start: np.ndarray
-    start_log_prob: np.ndarray
-    random_state: tuple
-    elapsed: float = 0.0
-    n_evaluations: int = 0
-
-    @property
-    def n_done(self):
-        return self.chain.shape[0]
-
-
-@dataclass(frozen=True)
 class RunBands:
     """Posterior bands of one run's curves.
 
@@ -144,7 +103,7 @@ class RunBands:
 
     run: str
     times: np.ndarray
-    species: tuple
+    species: tuple[str, ...]
     median: np.ndarray
     curve_low: np.ndarray
     curve_high: np.ndarray
@@ -164,7 +123,8 @@ class Posterior:
         Sampled parameters (natural names), the columns of `samples`.
     labels : tuple of str
         The same on the inference scale (``log10_k``), the columns of `chain`.
-    roles, units : dict of str to str
+    roles : dict of str to Role
+    units : dict of str to str
     priors : dict of str to Prior
     noise : str
         ``"declared"``, ``"per-species"`` or ``"shared"``.
@@ -197,29 +157,29 @@ class Posterior:
         side by side, with flags (see :func:`compare_intervals`).
     """
 
-    fit: object
-    names: tuple
-    labels: tuple
-    roles: dict
-    units: dict
-    priors: dict
+    fit: FitResult
+    names: tuple[str, ...]
+    labels: tuple[str, ...]
+    roles: dict[str, Role]
+    units: dict[str, str | None]
+    priors: dict[str, Prior]
     noise: str
     samples: np.ndarray
     state: ChainState
     chain_meta: dict
     chain_file: str | None
-    summary: dict
+    summary: dict[str, dict]
     correlation: np.ndarray
-    diagnostics: object
-    profiles: object
-    bands: tuple
+    diagnostics: Diagnostics
+    profiles: Profiles | None
+    bands: tuple[RunBands, ...]
     settings: Settings
-    warnings: tuple = ()
+    warnings: tuple[str, ...] = ()
     n_evaluations: int = 0
     n_failed: int = 0
     elapsed: float = 0.0
     stopped: str = "completed"
-    intervals: tuple = ()
+    intervals: tuple[dict, ...] = ()
 
     @property
     def chain(self):
@@ -245,10 +205,10 @@ class Posterior:
         out = []
         fit_names = list(self.fit.free_names)
         for i, a in enumerate(self.names):
-            if self.roles[a] != "rate constant":
+            if self.roles[a] != Role.RATE_CONSTANT:
                 continue
             for j, b in enumerate(self.names):
-                if self.roles[b] != "order":
+                if self.roles[b] != Role.ORDER:
                     continue
                 rho_fit = None
                 if self.fit.correlation is not None and a in fit_names and b in fit_names:
@@ -306,303 +266,6 @@ class Posterior:
                 "meta": "JSON: labels, names, settings, random state is in rng_*"}},
             "warnings": list(self.warnings),
         }
-
-
-# --------------------------------------------------------- log-probability
-
-class LogPosterior:
-    """Vectorised log posterior over a :class:`~kinfit.space.ParameterSpace`.
-
-    Calling it with rows [n, n_dim] on the inference scale returns [n]:
-    log prior + log likelihood, integrating only the rows inside the prior's
-    support, all in one :meth:`Problem.residuals` call.
-    """
-
-    def __init__(self, space):
-        self.space = space
-        self.evaluations = 0
-        self.failed = 0
-
-    def __call__(self, u):
-        u = np.atleast_2d(np.asarray(u, dtype=float))
-        out = self.space.log_prior(u)
-        inside = np.isfinite(out)
-        if inside.any():
-            rows = u[inside]
-            problem = self.space.problem
-            res = problem.residuals(self.space.to_values(rows))
-            ok = res[:, 0] != FAILED_RESIDUAL
-            if problem.sigma_known and self.space.noise != "declared":
-                res = res * problem.observation.sigma      # back to concentration units
-            with np.errstate(all="ignore"):
-                ll = self.space.log_likelihood(res, rows)
-            ll = np.where(ok & np.isfinite(ll), ll, -np.inf)
-            out[inside] += ll
-            self.evaluations += int(inside.sum())
-            self.failed += int((~ok).sum())
-        return out
-
-
-# ------------------------------------------------------------ the sampler
-
-def _moves(name):
-    import emcee
-
-    if name == "stretch":
-        return None   # emcee's default: the stretch move, a = 2
-    if name == "de":
-        # Differential evolution alone. emcee's snooker variant (DESnookerMove) is left
-        # out: on a Student-t posterior (tests/test_posterior.py) it gave intervals about
-        # half as wide as the exact ones, while DEMove and the stretch move were right.
-        return emcee.moves.DEMove()
-    raise KinfitError(f"moves {name!r} is not known; choose one of {', '.join(MOVES)}")
-
-
-def _progress_bar(total, initial, enabled):
-    if enabled is None:
-        enabled = sys.stderr.isatty()
-    from tqdm import tqdm
-
-    return tqdm(total=total, initial=initial, disable=not enabled, unit="step",
-                desc="sampling", file=sys.stderr, dynamic_ncols=True, leave=False)
-
-
-def run_ensemble(log_prob, start, n_steps, seed=0, *, moves="de", resume=None,
-                 on_checkpoint=None, checkpoint_every=CHECKPOINT_EVERY, max_time=None,
-                 progress=None):
-    """Run emcee's ensemble sampler with a vectorised log-probability.
-
-    Parameters
-    ----------
-    log_prob : callable
-        rows [n, n_dim] -> [n].
-    start : ndarray [n_walkers, n_dim]
-        Starting positions (ignored when resuming).
-    n_steps : int
-        Total steps wanted (including any already done in `resume`).
-    seed : int
-        Seeds the sampler's random state (ignored when resuming: the saved
-        state continues).
-    moves : {"de", "stretch"}
-        emcee's differential-evolution move, or its stretch move.
-    resume : ChainState, optional
-        Continue this chain.
-    on_checkpoint : callable, optional
-        Called with a :class:`ChainState` every `checkpoint_every` steps, at
-        the end, and before a KeyboardInterrupt propagates.
-    max_time : float, optional
-        Stop after this many seconds of sampling (counting the time before a resume).
-    progress : bool, optional
-        Show a progress bar on stderr; by default only when it is a terminal.
-
-    Returns
-    -------
-    (ChainState, stopped)
-        `stopped` is ``"completed"`` or ``"time budget"``.
-    """
-    import emcee
-
-    if resume is not None:
-        start = resume.start
-    start = np.asarray(start, dtype=float)
-    n_walkers, n_dim = start.shape
-    evaluated = [0]
-    counter = _Counting(log_prob, evaluated)
-    sampler = emcee.EnsembleSampler(n_walkers, n_dim, counter, vectorize=True,
-                                    moves=_moves(moves))
-    t0 = time.perf_counter()
-    if resume is None:
-        start_lp = np.asarray(log_prob(start), dtype=float)
-        resume = ChainState(np.empty((0, n_walkers, n_dim)), np.empty((0, n_walkers)),
-                            np.zeros(n_walkers, dtype=np.int64), start, start_lp,
-                            np.random.RandomState(seed).get_state(), 0.0, n_walkers)
-    done = resume.n_done
-    chain = np.empty((max(n_steps, done), n_walkers, n_dim))
-    lps = np.empty((max(n_steps, done), n_walkers))
-    chain[:done], lps[:done] = resume.chain, resume.log_prob
-    accepted = np.array(resume.accepted, dtype=np.int64)
-    coords = resume.chain[-1] if done else resume.start
-    lp = resume.log_prob[-1] if done else resume.start_log_prob
-    if not np.isfinite(lp).all():
-        raise KinfitError("some walkers start where the posterior is zero (outside the "
-                          "bounds or where the equations cannot be integrated)")
-    state = emcee.State(coords.copy(), log_prob=lp.copy(), random_state=resume.random_state)
-    base_elapsed, base_evals = resume.elapsed, resume.n_evaluations
-
-    def snapshot(i, rs):
-        return ChainState(chain[:i].copy(), lps[:i].copy(), accepted.copy(), resume.start,
-                          resume.start_log_prob, rs,
-                          base_elapsed + time.perf_counter() - t0,
-                          base_evals + evaluated[0])
-
-    i, stopped, rs = done, "completed", resume.random_state
-    bar = _progress_bar(n_steps, done, progress)
-    try:
-        for state in sampler.sample(state, iterations=max(n_steps - done, 0), store=False,
-                                    skip_initial_state_check=True):
-            accepted += np.any(state.coords != coords, axis=1)
-            coords = state.coords.copy()
-            chain[i], lps[i] = state.coords, state.log_prob
-            rs = state.random_state
-            i += 1
-            bar.update(1)
-            if on_checkpoint is not None and i % checkpoint_every == 0 and i < n_steps:
-                on_checkpoint(snapshot(i, rs))
-            if max_time is not None and base_elapsed + time.perf_counter() - t0 > max_time:
-                stopped = "time budget" if i < n_steps else "completed"
-                break
-    except KeyboardInterrupt:
-        if on_checkpoint is not None:
-            on_checkpoint(snapshot(i, rs))
-        raise
-    finally:
-        bar.close()
-    final = snapshot(i, rs)
-    if on_checkpoint is not None:
-        on_checkpoint(final)
-    return final, stopped
-
-
-class _Counting:
-    """Wraps a vectorised log-probability and counts the rows it evaluates."""
-
-    def __init__(self, fn, counter):
-        self.fn, self.counter = fn, counter
-
-    def __call__(self, u):
-        self.counter[0] += len(u)
-        return self.fn(u)
-
-
-def start_ball(space, fit_result, target, n_walkers, rng):
-    """Starting positions around the fit's optimum [n_walkers, n_dim].
-
-    Draws from N(û, (Σ_u/4)) where Σ_u is the fit's covariance on the
-    inference scale (a small box where it is missing); noise levels start
-    within ±5 % of each species' RMS residual. Draws outside the support or
-    that do not integrate are redrawn, then pulled towards the optimum.
-    """
-    u_hat = space.from_fit(fit_result)
-    m = space.n_model
-    sd = np.where(space.log10, 0.01, 0.01 * np.maximum(np.abs(u_hat), 1.0))
-    cov = None
-    if fit_result.covariance is not None and m:
-        names = list(fit_result.free_names)
-        idx = [names.index(n) for n in space.names[:m]]
-        slope = np.where(space.log10[:m], 10.0 ** u_hat[:m] * math.log(10.0), 1.0)
-        cov_u = fit_result.covariance[np.ix_(idx, idx)] / np.outer(slope, slope)
-        if np.all(np.isfinite(cov_u)):
-            cov = 0.25 * cov_u
-    noise_sd = np.full(space.n_dim - m, 0.02)      # in log10: about ±5 %
-    points = np.empty((n_walkers, space.n_dim))
-    lp = np.full(n_walkers, -np.inf)
-    todo = np.arange(n_walkers)
-    for attempt in range(6):
-        shrink = 0.5 ** attempt
-        draw = np.empty((todo.size, space.n_dim))
-        if cov is not None:
-            draw[:, :m] = rng.multivariate_normal(u_hat[:m], cov * shrink ** 2,
-                                                  size=todo.size, method="eigh")
-        else:
-            draw[:, :m] = u_hat[:m] + rng.normal(size=(todo.size, m)) * sd[:m] * shrink
-        draw[:, m:] = u_hat[m:] + rng.normal(size=(todo.size, space.n_dim - m)) * noise_sd
-        points[todo] = draw
-        lp[todo] = target(draw)
-        todo = todo[~np.isfinite(lp[todo])]
-        if todo.size == 0:
-            return points, lp
-    raise KinfitError("could not place the walkers around the best fit: the posterior is "
-                      "zero there (the fit sits on a bound, or the equations do not "
-                      "integrate nearby); loosen the bounds or check the fit")
-
-
-# -------------------------------------------------------------- checkpoint
-
-def _fingerprint(space, settings):
-    """Hash of everything a chain depends on except its length and analysis options."""
-    problem = space.problem
-    obs = problem.observation
-    h = hashlib.sha256()
-    for arr in (obs.values, obs.sigma if obs.sigma is not None else np.zeros(0),
-                obs.time_index, obs.species_index, *obs.run_times, space.lower, space.upper,
-                space.base, space.log10.astype(float)):
-        h.update(np.ascontiguousarray(arr, dtype=float).tobytes())
-    h.update(json.dumps([space.labels, [p.to_dict() for p in space.priors], space.noise,
-                         problem.system.stoichiometry.tolist(),
-                         [str(d[1]) for d in problem.mechanism.directions],
-                         settings.walkers, settings.seed, settings.moves],
-                        default=str).encode())
-    return h.hexdigest()
-
-
-def write_chain(path, state, meta):
-    """Write a chain (a checkpoint or the final chain) atomically as compressed ``.npz``.
-
-    Parameters
-    ----------
-    path : str or os.PathLike
-    state : ChainState
-    meta : dict
-        JSON-able description: labels, names, settings, fingerprint, ...
-    """
-    name, keys, pos, has_gauss, cached = state.random_state
-    buffer = io.BytesIO()
-    np.savez_compressed(
-        buffer, chain=state.chain, log_prob=state.log_prob, accepted=state.accepted,
-        start=state.start, start_log_prob=state.start_log_prob,
-        rng_keys=np.asarray(keys, dtype=np.uint32),
-        rng_numbers=np.array([pos, has_gauss, cached], dtype=float),
-        meta=np.array(json.dumps({**meta, "format": _FORMAT_VERSION, "rng": name,
-                                  "elapsed": state.elapsed,
-                                  "n_evaluations": state.n_evaluations,
-                                  "n_done": state.n_done})))
-    write_bytes(path, buffer.getvalue())
-
-
-def load_chain(path):
-    """Read a chain written by :func:`write_chain`.
-
-    Returns
-    -------
-    (ChainState, meta dict)
-
-    Raises
-    ------
-    KinfitError
-        If the file is missing, not a kinfit chain, or damaged.
-    """
-    path = Path(path)
-    try:
-        with np.load(path, allow_pickle=False) as data:
-            meta = json.loads(str(data["meta"]))
-            pos, has_gauss, cached = data["rng_numbers"].tolist()
-            state = ChainState(
-                chain=data["chain"], log_prob=data["log_prob"], accepted=data["accepted"],
-                start=data["start"], start_log_prob=data["start_log_prob"],
-                random_state=(meta.get("rng", "MT19937"), data["rng_keys"], int(pos),
-                              int(has_gauss), float(cached)),
-                elapsed=float(meta.get("elapsed", 0.0)),
-                n_evaluations=int(meta.get("n_evaluations", 0)))
-    except FileNotFoundError:
-        raise KinfitError(f"{path}: no such chain file") from None
-    except (OSError, KeyError, ValueError, EOFError) as exc:
-        raise KinfitError(f"{path}: not a kinfit chain file or damaged ({exc}); remove it and "
-                          f"start again without --resume") from None
-    if meta.get("format") != _FORMAT_VERSION:
-        raise KinfitError(f"{path}: written by another version of kinfit's chain format")
-    return state, meta
-
-
-def _check_resumable(path, meta, fingerprint, settings):
-    if meta.get("fingerprint") == fingerprint:
-        return
-    old = meta.get("settings", {})
-    changed = [f"{k} {old.get(k)!r} -> {getattr(settings, k)!r}"
-               for k in ("walkers", "seed", "moves", "noise") if old.get(k) != getattr(settings, k)]
-    what = "; ".join(changed) if changed else "the model, the data, bounds or priors differ"
-    raise KinfitError(f"{path}: this chain was made with different settings ({what}); "
-                      f"resume with the same experiment, model and options, or start a new "
-                      f"chain in another --out folder")
 
 
 # --------------------------------------------------------------- summaries
@@ -672,7 +335,7 @@ def compare_intervals(post):
     return rows
 
 
-def _bands(space, samples_u, rng, n_draws=_BAND_DRAWS, n_grid=200):
+def _bands(space: ParameterSpace, samples_u, rng, n_draws=_BAND_DRAWS, n_grid=200):
     """Posterior curve and predictive bands of every run."""
     problem = space.problem
     exp = problem.experiment
@@ -706,7 +369,8 @@ def _bands(space, samples_u, rng, n_draws=_BAND_DRAWS, n_grid=200):
 
 # --------------------------------------------------------------- front door
 
-def sample(experiment, mechanism, walkers=DEFAULT_WALKERS, steps=DEFAULT_STEPS, seed=0, *,
+def sample(experiment: Experiment, mechanism: Mechanism, walkers=DEFAULT_WALKERS,
+           steps=DEFAULT_STEPS, seed=0, *,
            noise="auto", moves=DEFAULT_MOVES, burn=None, thin=1, checkpoint=None,
            checkpoint_every=CHECKPOINT_EVERY, resume=False, max_time=None, progress=None,
            fit_result=None, starts=DEFAULT_STARTS, profile=True, bands=True):
@@ -724,7 +388,7 @@ def sample(experiment, mechanism, walkers=DEFAULT_WALKERS, steps=DEFAULT_STEPS, 
     seed : int
         Seeds the fit's start screen, the walkers' start and the sampler.
     noise : {"auto", "declared", "per-species", "shared"}
-        See :mod:`kinfit.space`.
+        See :mod:`kinfit.estimation.space`.
     moves : {"de", "stretch"}
         emcee's differential-evolution move (``DEMove``, the default: on the
         demo its autocorrelation time is about a third of the stretch move's),
@@ -742,11 +406,14 @@ def sample(experiment, mechanism, walkers=DEFAULT_WALKERS, steps=DEFAULT_STEPS, 
     max_time : float, optional
         Time budget for sampling, seconds; the chain stops there (and can be
         resumed).
-    progress : bool or None
-        Progress bar on stderr (None: only on a terminal).
+    progress : callable, optional
+        Called as ``progress(n_done, n_total, "sampling")`` after each step
+        (see :func:`kinfit.estimation.sampler.run_ensemble`).
     fit_result : FitResult, optional
         A fit of the same experiment and model to start from (fitted here
-        otherwise, with `starts` starting points).
+        otherwise, with `starts` starting points). The residual problem is
+        rebuilt with the fit's ``problem_settings`` (integrator, spectral
+        components), so the chain samples the problem that was fitted.
     profile, bands : bool
         Also compute profile-likelihood intervals and posterior bands.
 
@@ -765,10 +432,10 @@ def sample(experiment, mechanism, walkers=DEFAULT_WALKERS, steps=DEFAULT_STEPS, 
     settings = Settings(walkers=int(walkers), steps=int(steps), seed=int(seed), noise=noise,
                         moves=moves, burn=burn, thin=int(thin),
                         checkpoint_every=int(checkpoint_every), max_time=max_time)
-    _moves(moves)
+    emcee_moves(moves)
     if fit_result is None:
         fit_result = fit(experiment, mechanism, starts=starts, seed=seed)
-    problem = build_problem(mechanism, experiment)
+    problem = fit_result.problem_settings.build(mechanism, experiment)
     space = parameter_space(problem, noise=noise)
     if space.n_dim == 0:
         raise KinfitError("nothing to sample: every parameter is fixed and the noise is "
@@ -778,14 +445,14 @@ def sample(experiment, mechanism, walkers=DEFAULT_WALKERS, steps=DEFAULT_STEPS, 
                           f"parameters ({', '.join(space.names)}); try --walkers "
                           f"{max(2 * space.n_dim, 32) + (max(2 * space.n_dim, 32) % 2)}")
     target = LogPosterior(space)
-    fingerprint = _fingerprint(space, settings)
+    chain_id = fingerprint(space, settings.walkers, settings.seed, settings.moves)
     meta = {"labels": list(space.labels), "names": list(space.names),
-            "settings": settings.to_dict(), "fingerprint": fingerprint,
+            "settings": settings.to_dict(), "fingerprint": chain_id,
             "model": mechanism.name, "experiment": experiment.name}
     previous = None
     if resume and checkpoint is not None and Path(checkpoint).exists():
         previous, old_meta = load_chain(checkpoint)
-        _check_resumable(checkpoint, old_meta, fingerprint, settings)
+        check_resumable(checkpoint, old_meta, chain_id, settings.to_dict())
     rng = np.random.default_rng(seed)
     if previous is None:
         start, _ = start_ball(space, fit_result, target, walkers, rng)
@@ -824,10 +491,9 @@ def _analyse(space, fit_result, target, state, stopped, settings, rng, profile, 
     profiles = profile_intervals(fit_result) if profile and space.n_model else None
     run_bands = _bands(space, kept_u, rng) if bands else ()
     units = dict(fit_result.units)
-    conc_unit = fit_result.experiment.units.concentration
     for name, role in zip(space.names, space.roles):
         if role == Role.NOISE:
-            units[name] = conc_unit
+            units[name] = parameter_unit(role, fit_result.experiment.units)
     warnings = list(diag.reasons)
     if stopped == "time budget":
         warnings.insert(0, f"the time budget ran out after {chain.shape[0]} of "

@@ -3,7 +3,8 @@
 For a parameter θ the profile is the best fit with θ held at a value and all
 other free parameters re-optimised. With deviance D = −2 ln L (up to a
 constant: χ² when the noise is declared, N ln RSS when one noise level is
-estimated, which profiles σ out), the interval at level L is where
+estimated, which profiles σ out; see :mod:`kinfit.estimation.likelihood`),
+the interval at level L is where
 
     ΔD(θ) = D_profile(θ) − D_min ≤ q_L,    q_L = χ²₁ quantile at L
 
@@ -14,10 +15,13 @@ data cannot pin a parameter down: if ΔD stays below q all the way to a bound
 (or for many standard errors with an open bound) the interval "does not
 close" on that side.
 
-How it is computed: from the fit's optimum, steps of one standard error
-(on the fitting scale, log10 for rate constants) outwards on each side,
-each step re-optimising the other parameters with
-``scipy.optimize.least_squares`` from the previous step's solution, until ΔD
+How it is computed: the problem is rebuilt as the fit built it (its
+``problem_settings``: integrator, spectral components). From the fit's
+optimum, steps of one standard error (on the fitting scale of
+:mod:`kinfit.estimation.scale`, log10 for rate constants) outwards on each
+side, each step re-optimising the other parameters with
+``scipy.optimize.least_squares`` from the previous step's solution, with the
+problem's exact Jacobian (forward sensitivities, as in the fit), until ΔD
 passes the highest level; each crossing is then located by interpolating
 the signed root √ΔD (nearly linear in θ) and refined with a few more
 re-optimisations to |√ΔD − √q| < 0.01.
@@ -27,12 +31,18 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from kinfit.core.errors import KinfitError
-from kinfit.numerics.problem import FAILED_RESIDUAL, build_problem
+from kinfit.estimation.likelihood import DEVIANCE_NAMES, deviance
+from kinfit.estimation.scale import ScaledProblem
 from kinfit.estimation.space import parameter_space
+
+if TYPE_CHECKING:
+    from kinfit.estimation.least_squares import FitResult
+    from kinfit.estimation.space import ParameterSpace
 
 __all__ = ["ParameterProfile", "Profiles", "profile_intervals", "LEVELS"]
 
@@ -40,7 +50,6 @@ LEVELS = (0.68, 0.95)
 _MAX_STEPS = 14          # per side; the step doubles after 6 steps without a crossing
 _ROOT_TOL = 0.01         # on √ΔD
 _MAX_REFINE = 4
-_FD_STEP = 1e-7
 
 
 @dataclass(frozen=True)
@@ -67,7 +76,7 @@ class ParameterProfile:
     best: float
     values: np.ndarray
     delta: np.ndarray
-    intervals: dict
+    intervals: dict[float, tuple[float | None, float | None]]
     closed: bool
 
     def to_dict(self):
@@ -94,12 +103,12 @@ class Profiles:
     warnings : tuple of str
     """
 
-    parameters: dict
-    levels: tuple
-    thresholds: dict
+    parameters: dict[str, ParameterProfile]
+    levels: tuple[float, ...]
+    thresholds: dict[float, float]
     deviance: str
     n_optimisations: int
-    warnings: tuple = ()
+    warnings: tuple[str, ...] = ()
 
     def to_dict(self):
         return {"levels": list(self.levels),
@@ -112,21 +121,16 @@ class Profiles:
 class _Profiler:
     """Constrained re-fits of a problem with one parameter held fixed."""
 
-    def __init__(self, space):
+    def __init__(self, space: ParameterSpace):
         self.space = space
         self.problem = space.problem
         self.declared = self.problem.sigma_known
-        self.n_points = self.problem.observation.n_points
+        self.scaled = ScaledProblem(self.problem, space.scale)
         self.count = 0
 
-    def deviance(self, res):
-        rss = float(res @ res)
-        if self.declared:
-            return rss
-        return self.n_points * math.log(max(rss, 1e-300))
-
-    def residuals(self, u_rows):
-        return self.problem.residuals(self.space.to_values(u_rows))
+    def deviance_at(self, u):
+        """D at one point `u` [n_dim] of the inference scale."""
+        return deviance(self.scaled.residuals(u)[0], self.declared)
 
     def refit(self, j, uj, start):
         """Best deviance with parameter j held at uj, other parameters from `start`.
@@ -143,46 +147,39 @@ class _Profiler:
         u = np.array(start, dtype=float)
         u[j] = uj
         if others.size == 0:
-            return u, self.deviance(self.residuals(u)[0])
+            return u, self.deviance_at(u)
         lo, hi = sp.lower[others], sp.upper[others]
         x0 = np.clip(u[others], lo, hi)
         # keep the start strictly inside finite bounds, as least_squares requires
         span = np.where(np.isfinite(hi - lo), hi - lo, 1.0)
         x0 = np.clip(x0, lo + 1e-10 * span, hi - 1e-10 * span)
 
-        def rows(x):
-            r = np.repeat(u[None], x.shape[0], axis=0)
-            r[:, others] = x
-            return r
+        def point(x):
+            full = u.copy()
+            full[others] = x
+            return full
 
         def fun(x):
-            return self.residuals(rows(x[None]))[0]
+            return self.scaled.residuals(point(x))[0]
 
         def jac(x):
-            h = _FD_STEP * np.maximum(np.abs(x), 1.0)
-            h = np.where(x + h > hi, -h, h)
-            sets = np.repeat(x[None], x.size + 1, axis=0)
-            sets[1:][np.arange(x.size), np.arange(x.size)] += h
-            res = self.residuals(rows(sets))
-            out = (res[1:] - res[0]) / h[:, None]
-            out[(res[1:, 0] == FAILED_RESIDUAL) | (res[0, 0] == FAILED_RESIDUAL)] = 0.0
-            return out.T
+            return self.scaled.residuals_jacobian(point(x))[1][:, others]
 
         sol = least_squares(fun, x0, jac=jac, bounds=(lo, hi), method="trf", x_scale="jac",
                             ftol=1e-10, xtol=1e-10, gtol=1e-10, max_nfev=100 * (others.size + 1))
         u[others] = sol.x
-        return u, self.deviance(sol.fun)
+        return u, deviance(sol.fun, self.declared)
 
 
 def _step_size(space, fit_result, j, u_hat):
     name = space.names[j]
     se = fit_result.stderr.get(name)
+    logarithmic = space.scale.logarithmic[j]
     if se is not None and math.isfinite(se) and se > 0:
-        if space.log10[j]:
-            x = 10.0 ** u_hat[j]
-            return float(np.clip(se / (x * math.log(10.0)), 1e-4, 1.0))
+        if logarithmic:      # the standard error on the fitting scale, by the delta method
+            return float(np.clip(se / space.scale.jacobian_factor(u_hat)[j], 1e-4, 1.0))
         return float(se)
-    return 0.1 if space.log10[j] else 0.1 * max(abs(u_hat[j]), 1.0)
+    return 0.1 if logarithmic else 0.1 * max(abs(u_hat[j]), 1.0)
 
 
 def _profile_side(prof, j, u_hat, d_min, step, direction, q_max):
@@ -235,7 +232,7 @@ def _crossing(prof, j, d_min, side, q, u_hat):
     return lo_pt[0] + (target - za) * (hi_pt[0] - lo_pt[0]) / max(zb - za, 1e-12), extra
 
 
-def profile_intervals(fit_result, levels=LEVELS, names=None):
+def profile_intervals(fit_result: FitResult, levels=LEVELS, names=None):
     """Profile-likelihood intervals of the free parameters of a fit.
 
     Parameters
@@ -255,7 +252,7 @@ def profile_intervals(fit_result, levels=LEVELS, names=None):
     levels = tuple(sorted(float(lv) for lv in levels))
     if not levels or not all(0.0 < lv < 1.0 for lv in levels):
         raise KinfitError(f"profile levels must be between 0 and 1, got {levels}")
-    problem = build_problem(fit_result.mechanism, fit_result.experiment)
+    problem = fit_result.problem_settings.build(fit_result.mechanism, fit_result.experiment)
     space = parameter_space(problem, with_noise=False)
     unknown = [n for n in (names or ()) if n not in space.names]
     if unknown:
@@ -263,7 +260,7 @@ def profile_intervals(fit_result, levels=LEVELS, names=None):
                           f"{', '.join(space.names)}")
     prof = _Profiler(space)
     u_hat = space.from_natural(np.array([fit_result.values[n] for n in space.names]))[0]
-    d_min = prof.deviance(prof.residuals(u_hat)[0])
+    d_min = prof.deviance_at(u_hat)
     thresholds = {lv: float(chi2.ppf(lv, 1)) for lv in levels}
     q_max = max(thresholds.values())
     out, warnings = {}, []
@@ -287,7 +284,9 @@ def profile_intervals(fit_result, levels=LEVELS, names=None):
         delta = np.array([p[1] for p in pts] + [0.0])
         best_found = min(best_found, d_min + float(delta.min()))
         order = np.argsort(u_vals)
-        nat = np.where(space.log10[j], 10.0 ** u_vals[order], u_vals[order])
+        nat = space.to_natural(
+            np.where(np.arange(space.n_dim)[None, :] == j, u_vals[order][:, None],
+                     u_hat[None, :]))[:, j]
         out[name] = ParameterProfile(
             name=name, best=float(fit_result.values[name]), values=nat, delta=delta[order],
             intervals=intervals, closed=None not in intervals[levels[-1]])
@@ -301,5 +300,5 @@ def profile_intervals(fit_result, levels=LEVELS, names=None):
                             f"close inside the bounds; the data cannot pin {name} down (it is "
                             f"not identifiable from these data)")
     return Profiles(parameters=out, levels=levels, thresholds=thresholds,
-                    deviance="chi2" if prof.declared else "N ln RSS",
+                    deviance=DEVIANCE_NAMES[prof.declared],
                     n_optimisations=prof.count, warnings=tuple(warnings))

@@ -1,16 +1,17 @@
 """The parameter space that intervals and posteriors are computed in.
 
-:func:`parameter_space` takes the free parameters of a :class:`~kinfit.objective.Problem`
-onto the scale the fit already uses, adds noise levels when they are to be
-sampled, and gives every parameter its prior.
+:func:`parameter_space` takes the free parameters of a
+:class:`~kinfit.numerics.problem.Problem` onto the scale the fit already uses,
+adds noise levels when they are to be sampled, and gives every parameter its
+prior.
 
 Scales
 ------
-Rate constants are handled as u = log10 k (positive by construction, well
-scaled when k is far from 1); noise levels as log10 σ; orders, initial
-concentrations and time offsets on their own scale.
+The fit's scale (:mod:`kinfit.estimation.scale`): rate constants as
+u = log10 k, orders, initial concentrations and time offsets on their own
+scale; sampled noise levels as log10 σ.
 
-Default priors (a model file may replace one, see :mod:`kinfit.priors`)
+Default priors (a model file may replace one, see :mod:`kinfit.inputs.priors`)
 ------------------------------------------------------------------------
 * rate constant: log-uniform between its bounds, i.e. uniform in log10 k;
 * order, initial concentration, time offset: uniform between the bounds;
@@ -20,37 +21,42 @@ Default priors (a model file may replace one, see :mod:`kinfit.priors`)
 
 A bound that is open makes the default prior flat (improper) on that side:
 the posterior is then proper only if the data pin the parameter down, which
-the profile-likelihood check reports (see :mod:`kinfit.profile`).
+the profile-likelihood check reports (see :mod:`kinfit.estimation.profile`).
 
 Noise (how the likelihood treats measurement error)
 ----------------------------------------------------
+The formulas are those of :mod:`kinfit.estimation.likelihood`.
+
 ``declared``
     The experiment's ``[noise]`` gives each point its σ_i; nothing is
-    sampled; ln L as in :mod:`kinfit.objective`.
+    sampled.
 ``per-species``
     One unknown σ per measured species, named ``sigma_<species>``, sampled
-    with the other parameters: ln L = Σ_s [−RSS_s/(2σ_s²) − n_s ln σ_s] − (N/2) ln 2π.
+    with the other parameters.
 ``shared``
     One unknown σ for all points, named ``sigma``: the fit's convention; its
-    maximum over σ is the concentrated likelihood of :mod:`kinfit.objective`.
+    maximum over σ is the fit's concentrated likelihood.
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.priors import Prior
+from kinfit.estimation.likelihood import gaussian_log_likelihood, grouped_log_likelihood
+from kinfit.estimation.scale import FitScale, fit_scale
 from kinfit.inputs.parameters import Role
+from kinfit.inputs.priors import Prior
+
+if TYPE_CHECKING:
+    from kinfit.numerics.problem import Problem
 
 __all__ = ["ParameterSpace", "parameter_space", "NOISE_MODES"]
 
 NOISE_MODES = ("auto", "declared", "per-species", "shared")
-_LN10 = math.log(10.0)
-_LOG_2PI = math.log(2.0 * math.pi)
 # support of the default noise prior, relative to the largest measured magnitude
 _SIGMA_RANGE = (1e-6, 10.0)
 
@@ -62,22 +68,12 @@ class ParameterSpace:
     Attributes
     ----------
     problem : Problem
-    names : tuple of str
-        Natural names: the problem's free parameters in order, then the
-        sampled noise levels.
-    labels : tuple of str
-        Names on the inference scale (``log10_k`` for a rate constant k).
-    roles : tuple of str
-    log10 : ndarray [n_dim] of bool
-        Whether each is handled as log10 of the natural value.
-    lower, upper : ndarray [n_dim]
-        Bounds on the inference scale.
+    scale : FitScale
+        The problem's free parameters in order, then the sampled noise
+        levels: names, roles, scales and bounds (see
+        :mod:`kinfit.estimation.scale`).
     priors : tuple of Prior
         Natural-scale priors, cut to the bounds.
-    free_index : ndarray [n_model] of int
-        Columns of the problem's parameter rows that are free.
-    base : ndarray [n_params]
-        Values of all the problem's parameters (fixed ones keep them).
     noise : str
         ``"declared"``, ``"per-species"`` or ``"shared"``.
     noise_groups : tuple of str
@@ -86,79 +82,100 @@ class ParameterSpace:
         The σ group of each data point (all 0 when declared).
     """
 
-    problem: object
-    names: tuple
-    labels: tuple
-    roles: tuple
-    log10: np.ndarray
-    lower: np.ndarray
-    upper: np.ndarray
-    priors: tuple
-    free_index: np.ndarray
-    base: np.ndarray
+    problem: Problem
+    scale: FitScale
+    priors: tuple[Prior, ...]
     noise: str
-    noise_groups: tuple = ()
+    noise_groups: tuple[str, ...] = ()
     group_index: np.ndarray = field(default=None, repr=False)
 
     @property
+    def names(self):
+        """Natural names [n_dim]: free parameters, then noise levels."""
+        return self.scale.names
+
+    @property
+    def labels(self):
+        """Names on the inference scale (``log10_k`` for a rate constant k)."""
+        return self.scale.labels
+
+    @property
+    def roles(self):
+        return self.scale.roles
+
+    @property
+    def log10(self):
+        """Whether each dimension is handled as log10 of the natural value [n_dim]."""
+        return self.scale.log10
+
+    @property
+    def lower(self):
+        """Lower bounds on the inference scale [n_dim]."""
+        return self.scale.lower
+
+    @property
+    def upper(self):
+        """Upper bounds on the inference scale [n_dim]."""
+        return self.scale.upper
+
+    @property
+    def free_index(self):
+        """Columns of the problem's parameter rows that are free [n_model]."""
+        return self.scale.free_index
+
+    @property
+    def base(self):
+        """Values of all the problem's parameters [n_params] (fixed ones keep them)."""
+        return self.scale.base
+
+    @property
     def n_dim(self):
-        return len(self.names)
+        return self.scale.n_dim
 
     @property
     def n_model(self):
         """Number of the problem's free parameters (the leading dimensions)."""
-        return self.free_index.size
+        return self.scale.n_model
 
     def to_natural(self, u):
         """Inference-scale rows [n, n_dim] -> natural values [n, n_dim]."""
-        u = np.atleast_2d(np.asarray(u, dtype=float))
-        return np.where(self.log10, 10.0 ** np.clip(u, -300.0, 300.0), u)
+        return self.scale.to_natural(u)
 
     def from_natural(self, x):
         """Natural values [n, n_dim] -> inference scale [n, n_dim]."""
-        x = np.atleast_2d(np.asarray(x, dtype=float))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            return np.where(self.log10, np.log10(x), x)
+        return self.scale.from_natural(x)
 
     def to_values(self, u):
         """Full parameter rows of the problem [n, n_params] from rows [n, ≥ n_model]."""
-        u = np.atleast_2d(np.asarray(u, dtype=float))
-        out = np.repeat(self.base[None], u.shape[0], axis=0)
-        m = self.n_model
-        out[:, self.free_index] = np.where(self.log10[:m], 10.0 ** np.clip(u[:, :m], -300, 300),
-                                           u[:, :m])
-        return out
+        return self.scale.to_values(u)
 
     def log_prior(self, u):
         """Log prior density on the inference scale [n] (−inf outside the support).
 
-        Includes the change-of-variables term ln(x ln 10) of each log10
-        dimension, so a log-uniform prior is flat in u.
+        Includes the change-of-variables term ln |dx/du| of each logarithmic
+        dimension (up to a constant), so a log-uniform prior is flat in u.
         """
         u = np.atleast_2d(np.asarray(u, dtype=float))
         x = self.to_natural(u)
+        jacobian = self.scale.log_jacobian(u)
         out = np.zeros(u.shape[0])
         for j, prior in enumerate(self.priors):
             out += prior.log_density(x[:, j])
-            if self.log10[j]:
-                out += u[:, j] * _LN10
+            out += jacobian[:, j]
         out[~np.all((u >= self.lower) & (u <= self.upper), axis=1)] = -np.inf
         return np.where(np.isnan(out), -np.inf, out)
 
     def log_likelihood(self, res, u):
-        """Gaussian log-likelihood of residual rows [n, n_points] (see the module notes)."""
+        """Gaussian log-likelihood of residual rows [n, n_points] (see the module notes).
+
+        `res` are the problem's residuals with declared noise, unweighted
+        residuals f − y when the noise levels are sampled (their σ is in `u`).
+        """
         res = np.atleast_2d(res)
         if self.noise == "declared":
-            return self.problem.log_likelihood(res)
-        n_groups = len(self.noise_groups)
-        sigma = self.to_natural(u)[:, self.n_model:]                     # [n, n_groups]
-        ss = np.zeros((res.shape[0], n_groups))
-        counts = np.bincount(self.group_index, minlength=n_groups)
-        for g in range(n_groups):
-            block = res[:, self.group_index == g]
-            ss[:, g] = np.einsum("ij,ij->i", block, block)
-        return (-0.5 * np.sum(ss / sigma ** 2, axis=1) - np.sum(counts * np.log(sigma), axis=1)
-                - 0.5 * res.shape[1] * _LOG_2PI)
+            return gaussian_log_likelihood(res, self.problem.observation.sigma)
+        return grouped_log_likelihood(res, self.to_natural(u)[:, self.n_model:],
+                                      self.group_index)
 
     def from_fit(self, fit_result):
         """The fit's best values on the inference scale [n_dim], noise at its RMS residual."""
@@ -207,25 +224,13 @@ def parameter_space(problem, noise="auto", with_noise=True):
         parameter already uses.
     """
     mode = _noise_mode(noise, problem) if with_noise else "declared"
+    scale = fit_scale(problem)
     params = problem.parameters
-    free = [i for i, p in enumerate(params) if p.vary]
-    names, labels, roles, log10, lower, upper, priors = [], [], [], [], [], [], []
-    for i in free:
+    priors = []
+    for i, logarithmic in zip(scale.free_index, scale.logarithmic):
         p = params[i]
-        is_log = p.role == Role.RATE_CONSTANT
-        default = Prior("log-uniform") if is_log else Prior("uniform")
-        prior = (p.prior or default).within(p.min, p.max)
-        names.append(p.name)
-        labels.append(f"log10_{p.name}" if is_log else p.name)
-        roles.append(p.role)
-        log10.append(is_log)
-        if is_log:
-            lower.append(math.log10(p.min) if p.min > 0 else -math.inf)
-            upper.append(math.log10(p.max) if math.isfinite(p.max) else math.inf)
-        else:
-            lower.append(p.min)
-            upper.append(p.max)
-        priors.append(prior)
+        default = Prior("log-uniform") if logarithmic else Prior("uniform")
+        priors.append((p.prior or default).within(p.min, p.max))
 
     obs = problem.observation
     group_index = np.zeros(obs.n_points, dtype=int)
@@ -237,26 +242,19 @@ def parameter_space(problem, noise="auto", with_noise=True):
             for _, s, sl in obs.traces:
                 group_index[sl] = species.index(s)
         taken = set(problem.names)
+        names, lower, upper = [], [], []
         for g in groups:
             name = "sigma" if g == "all" else f"sigma_{g}"
             if name in taken:
                 raise KinfitError(f"{problem.mechanism.source}: kinfit names the noise level "
                                   f"{name!r}, but the model already has a parameter of that "
                                   f"name; rename the model's parameter")
-            scale = float(np.max(np.abs(obs.values[group_index == groups.index(g)]))) or 1.0
-            lo, hi = _SIGMA_RANGE[0] * scale, _SIGMA_RANGE[1] * scale
+            size = float(np.max(np.abs(obs.values[group_index == groups.index(g)]))) or 1.0
+            lo, hi = _SIGMA_RANGE[0] * size, _SIGMA_RANGE[1] * size
             names.append(name)
-            labels.append(f"log10_{name}")
-            roles.append(Role.NOISE)
-            log10.append(True)
-            lower.append(math.log10(lo))
-            upper.append(math.log10(hi))
+            lower.append(lo)
+            upper.append(hi)
             priors.append(Prior("log-uniform").within(lo, hi))
-    return ParameterSpace(
-        problem=problem, names=tuple(names), labels=tuple(labels), roles=tuple(roles),
-        log10=np.array(log10, dtype=bool), lower=np.array(lower, dtype=float),
-        upper=np.array(upper, dtype=float), priors=tuple(priors),
-        free_index=np.array(free, dtype=int),
-        base=np.array([p.value for p in params], dtype=float), noise=mode,
-        noise_groups=groups, group_index=group_index)
-
+        scale = scale.extended(names, [Role.NOISE] * len(names), lower, upper, "log10")
+    return ParameterSpace(problem=problem, scale=scale, priors=tuple(priors), noise=mode,
+                          noise_groups=groups, group_index=group_index)

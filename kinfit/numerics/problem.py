@@ -1,4 +1,4 @@
-"""Residuals and likelihood of a mechanism against all runs of an experiment.
+"""Residuals of a mechanism against all runs of an experiment.
 
 :func:`build_problem` joins a mechanism and an experiment once: it lays out
 the parameter vector (the model's parameters, then each run's fitted initial
@@ -6,27 +6,12 @@ concentrations and time offset), flattens the data and checks that they fit
 together. :meth:`Problem.predict` then evaluates any number of parameter sets
 in one vectorised integration.
 
-Likelihood conventions (stated in README and DEVELOPERS.md)
--------------------------------------------------------------
-With declared noise σ_i (Gaussian, independent)::
-
-    -2 ln L = χ² + Σ ln(2π σ_i²),      χ² = Σ ((y_i - f_i)/σ_i)²
-
-With the noise unknown (the default) one σ shared by all points is estimated
-by maximum likelihood, σ̂² = RSS/N, which gives the concentrated likelihood::
-
-    -2 ln L = N ln(2π RSS/N) + N
-
-Then AIC = -2 ln L + 2p, AICc = AIC + 2p(p+1)/(N-p-1), BIC = -2 ln L + p ln N,
-where p counts the fitted parameters (the noise level is not counted). This
-is statsmodels' OLS convention; lmfit reports N ln(χ²/N) + 2p, which differs
-from ours by the constant N(ln 2π + 1) for unknown noise and so ranks models
-identically.
+The likelihood built on these residuals, and the information criteria, are
+stated in :mod:`kinfit.estimation.likelihood`.
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -40,8 +25,7 @@ from kinfit.numerics.integrators import (ATOL, KIND_INITIAL, KIND_LOG_K, KIND_OR
 from kinfit.numerics.rate_system import RateSystem, compile_mechanism
 from kinfit.numerics.temperature_laws import join_temperatures
 
-__all__ = ["Problem", "build_problem", "residuals", "log_likelihood",
-           "information_criteria", "FAILED_RESIDUAL"]
+__all__ = ["Problem", "build_problem", "residuals", "FAILED_RESIDUAL"]
 
 # Residual given to every point of a parameter set whose integration failed:
 # large enough that an optimiser always prefers a set that integrates.
@@ -356,17 +340,6 @@ class Problem:
         res[~ok] = FAILED_RESIDUAL
         return res
 
-    def log_likelihood(self, res):
-        """Gaussian log-likelihood of residual rows [n_sets, n_points] (see module notes)."""
-        res = np.atleast_2d(res)
-        n = res.shape[1]
-        chi2 = np.einsum("ij,ij->i", res, res)
-        if self.observation.sigma is not None:
-            const = np.sum(np.log(2 * math.pi * self.observation.sigma ** 2))
-            return -0.5 * (chi2 + const)
-        with np.errstate(divide="ignore"):
-            return -0.5 * n * (np.log(2 * math.pi * chi2 / n) + 1.0)
-
     def residuals_jacobian(self, values):
         """Residuals and their exact Jacobian for one parameter set.
 
@@ -535,34 +508,3 @@ def residuals(mechanism, experiment, values=None):
         run, trace by trace, as in the data files.
     """
     return build_problem(mechanism, experiment).residuals(values)[0]
-
-
-def log_likelihood(mechanism, experiment, values=None):
-    """Gaussian log-likelihood of one parameter set (see the module notes)."""
-    problem = build_problem(mechanism, experiment)
-    return float(problem.log_likelihood(problem.residuals(values))[0])
-
-
-def information_criteria(log_lik, n_points, n_params):
-    """AIC, AICc and BIC from a maximised log-likelihood.
-
-    Parameters
-    ----------
-    log_lik : float
-        Maximised log-likelihood.
-    n_points, n_params : int
-        N data points and p fitted parameters.
-
-    Returns
-    -------
-    dict with keys ``aic``, ``aicc``, ``bic``
-        AIC = -2 ln L + 2p (Akaike 1974); AICc = AIC + 2p(p+1)/(N-p-1)
-        (Hurvich & Tsai 1989; infinite when N <= p + 1); BIC = -2 ln L + p ln N
-        (Schwarz 1978).
-    """
-    aic = -2.0 * log_lik + 2.0 * n_params
-    denom = n_points - n_params - 1
-    aicc = aic + 2.0 * n_params * (n_params + 1) / denom if denom > 0 else math.inf
-    bic = -2.0 * log_lik + n_params * math.log(n_points)
-    return {"aic": aic, "aicc": aicc, "bic": bic}
-

@@ -902,7 +902,7 @@ def write_posterior(out_dir, post):
     list of pathlib.Path
     """
     from kinfit.figures.plots import plot_bands, plot_corner, plot_profiles
-    from kinfit.estimation.posterior import CHAIN_FILE, write_chain
+    from kinfit.estimation.chains import CHAIN_FILE, write_chain
 
     out_dir = _prepare(out_dir)
     figures = {"corner": plot_corner(post), "bands": plot_bands(post),

@@ -48,8 +48,7 @@ def main(argv=None):
         for moves in args.moves:                      # interleaved repeats
             t0 = time.perf_counter()
             post = sample(exp, mech, walkers=args.walkers, steps=args.steps, seed=rep,
-                          moves=moves, fit_result=best, profile=False, bands=False,
-                          progress=False)
+                          moves=moves, fit_result=best, profile=False, bands=False)
             wall = time.perf_counter() - t0
             diag = post.diagnostics
             rows[moves].append((wall, post.n_evaluations / post.elapsed,

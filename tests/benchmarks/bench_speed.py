@@ -41,6 +41,7 @@ sys.path.insert(0, str(ROOT))
 
 from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.estimation.least_squares import fit  # noqa: E402
+from kinfit.estimation.likelihood import gaussian_log_likelihood  # noqa: E402
 from kinfit.inputs.mechanism import mechanism_from_text  # noqa: E402
 from kinfit.numerics.problem import build_problem  # noqa: E402
 from kinfit.numerics.integrate import simulate  # noqa: E402
@@ -216,7 +217,7 @@ def main():
     walkers = ref.x * (1 + 1e-3 * rng.standard_normal((32, 3)))
 
     def kinfit_batch():
-        return problem.log_likelihood(problem.residuals(walkers))
+        return gaussian_log_likelihood(problem.residuals(walkers), problem.observation.sigma)
 
     def hand_batch():
         return [hand.log_prob(w, SIGMA) for w in walkers]

@@ -89,7 +89,7 @@ def one_replicate(args):
         mech = load_mechanism(folder / "model.toml")
         t0 = time.perf_counter()
         post = sample(exp, mech, walkers=walkers, steps=steps, seed=seed, starts=starts,
-                      bands=False, progress=False)
+                      bands=False)
         elapsed = time.perf_counter() - t0
     out = {"seed": seed, "converged": post.converged, "seconds": elapsed,
            "tau_multiple": post.diagnostics.tau_multiple,
