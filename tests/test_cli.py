@@ -352,9 +352,9 @@ def test_rank_needs_two_candidates_and_a_known_criterion(rank_inputs):
 
 
 def test_progress_bar_counts_fits():
-    from kinfit.app.cli import _ProgressBar
+    from kinfit.app.cli import ProgressBar
 
-    bar = _ProgressBar("fitting candidates")
+    bar = ProgressBar("fitting candidates")
     for done in (1, 2, 3):
         bar(done, 3, f"candidate {done}")
     assert bar.bar.length == 3 and bar.bar.pos == 3

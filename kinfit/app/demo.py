@@ -23,10 +23,10 @@ from pathlib import Path
 
 import numpy as np
 
-from kinfit.core.atomic import write_text
+from kinfit.output.bundle import Bundle, write_bundle
 
-__all__ = ["SCENARIO", "SEED", "TRUTH", "RUNS", "MODEL_TEXT", "EXPERIMENT_TEXT", "write_inputs",
-           "compare_with_truth"]
+__all__ = ["SCENARIO", "SEED", "TRUTH", "RUNS", "MODEL_TEXT", "EXPERIMENT_TEXT", "INPUT_FILES",
+           "input_files", "write_inputs", "compare_with_truth"]
 
 SCENARIO = (
     "Invented demo study: a coatings team at an imaginary company, Larkspur Resins, cures a "
@@ -114,6 +114,25 @@ def _traces_csv():
     return "\n".join(rows) + "\n"
 
 
+INPUT_FILES = {"model": "thiol_addition.toml", "experiment": "experiment.toml",
+               "data": "traces.csv", "truth": "truth.toml"}
+
+
+def input_files():
+    """The demo's model, experiment, data and truth files, by the names of :data:`INPUT_FILES`.
+
+    Returns
+    -------
+    Bundle
+    """
+    truth = "\n".join(["# True parameters used to simulate traces.csv (seed "
+                       f"{SEED}); units mM and min.", "[parameters]"]
+                      + [f"{k} = {v!r}" for k, v in TRUTH.items()]) + "\n"
+    texts = {"model": MODEL_TEXT, "experiment": EXPERIMENT_TEXT, "data": _traces_csv(),
+             "truth": truth}
+    return Bundle({INPUT_FILES[key]: text for key, text in texts.items()})
+
+
 def write_inputs(folder):
     """Write the demo's model, experiment, data and truth files into `folder`.
 
@@ -122,17 +141,8 @@ def write_inputs(folder):
     dict of str to pathlib.Path
         Keys ``model``, ``experiment``, ``data``, ``truth``.
     """
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
-    truth = "\n".join(["# True parameters used to simulate traces.csv (seed "
-                       f"{SEED}); units mM and min.", "[parameters]"]
-                      + [f"{k} = {v!r}" for k, v in TRUTH.items()]) + "\n"
-    paths = {"model": folder / "thiol_addition.toml", "experiment": folder / "experiment.toml",
-             "data": folder / "traces.csv", "truth": folder / "truth.toml"}
-    for key, text in (("model", MODEL_TEXT), ("experiment", EXPERIMENT_TEXT),
-                      ("data", _traces_csv()), ("truth", truth)):
-        write_text(paths[key], text)
-    return paths
+    write_bundle(folder, input_files())
+    return {key: Path(folder) / name for key, name in INPUT_FILES.items()}
 
 
 def compare_with_truth(result):
