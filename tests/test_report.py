@@ -3,8 +3,10 @@ posterior, signals, notebook)."""
 
 from __future__ import annotations
 
+import io
 import json
 
+import numpy as np
 import pytest
 
 from conftest import MODELS
@@ -54,6 +56,26 @@ def test_write_fit(tmp_path, result):
     header = (tmp_path / "out" / "fitted_curves.csv").read_text().splitlines()[0]
     assert header == "run,time,A,P"
     assert not [p for p in (tmp_path / "out").iterdir() if ".part" in p.name]
+
+
+def test_csv_fields_are_quoted_where_needed(tmp_path):
+    # a run name with a comma survives the round trip through a general CSV reader (pandas)
+    import pandas as pd
+
+    from kinfit.output.fit import curves_csv
+
+    (tmp_path / "e.toml").write_text('[[runs]]\nname = "cold, 1"\nfile = "a.csv"\n'
+                                     'initial = { A = 1 }\n')
+    (tmp_path / "a.csv").write_text("time,A\n0,1\n5,0.61\n10,0.37\n20,0.14\n")
+    result = fit(load_experiment(tmp_path / "e.toml"),
+                 load_mechanism(MODELS / "first_order.toml"), starts=1)
+    table = pd.read_csv(io.StringIO(curves_csv(result)))
+    assert list(table.columns) == ["run", "time", "A", "P"]
+    assert set(table["run"]) == {"cold, 1"}
+    # first order, [A] = [A]0 exp(-k t) (closed form): the curve at its last time
+    k = result.values["k"]
+    last = table.iloc[-1]
+    assert last["A"] == pytest.approx(np.exp(-k * last["time"]), rel=1e-5)
 
 
 # ------------------------------------------------------------ temperature
@@ -135,6 +157,12 @@ def test_write_ranking(small_ranking, tmp_path):
     assert (tmp_path / "out" / "best" / "fit.png").exists()
     csv = (tmp_path / "out" / "initial_rates.csv").read_text().splitlines()
     assert csv[0] == "run,A0,B0,rate,stderr,note" and len(csv) == 4
+    import pandas as pd                      # notes with commas stay one field each
+
+    table = pd.read_csv(tmp_path / "out" / "initial_rates.csv", keep_default_na=False)
+    assert list(table["note"]) == [r.note for r in comparison.cross_check.initial_rates.rates]
+    assert json.loads((tmp_path / "out" / "best" / "result.json").read_text())["schema"] \
+        == "kinfit.result/1"
 
 
 def test_format_posterior(line_posterior):
