@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Union
+from typing import TYPE_CHECKING
 
 from kinfit.core.defaults import (DEFAULT_CRITERION, DEFAULT_MAX_CONVERSION, DEFAULT_MOVES,
                                   DEFAULT_SEED, DEFAULT_STARTS, DEFAULT_STEPS, DEFAULT_WALKERS,
@@ -52,8 +52,8 @@ class Outcome:
         The text to show.
     """
 
-    result: Union[FitResult, Posterior, Comparison, Prediction, Trajectory,
-                  tuple[FitResult, ...]]
+    result: (FitResult | Posterior | Comparison | Prediction | Trajectory
+             | tuple[FitResult, ...])
     bundle: Bundle
     summary: str
 
@@ -81,7 +81,7 @@ class FitFolder:
 
 def provenance_of(experiment, mechanism=None, seed=None, settings=None, command=None,
                   candidates=()):
-    """The provenance record of a run on `experiment` (see :func:`kinfit.output.provenance.collect`).
+    """The provenance record of a run (see :func:`kinfit.output.provenance.collect`).
 
     Parameters
     ----------
