@@ -24,6 +24,7 @@ from pathlib import Path
 import numpy as np
 
 from kinfit.output.bundle import Bundle, write_bundle
+from kinfit.output.text import csv_text
 
 __all__ = ["SCENARIO", "SEED", "TRUTH", "RUNS", "MODEL_TEXT", "EXPERIMENT_TEXT", "INPUT_FILES",
            "input_files", "write_inputs", "compare_with_truth"]
@@ -103,15 +104,15 @@ def _traces_csv():
 
     mech = mechanism_from_text(MODEL_TEXT, "demo model")
     rng = np.random.default_rng(SEED)
-    rows = ["run,time,species,value"]
+    rows = []
     for name, start in RUNS.items():
         traj = simulate(mech, start, TRUTH, TIMES)
         for species in OBSERVED:
             true = traj[species]
             sigma = np.sqrt(NOISE_ABSOLUTE ** 2 + (NOISE_RELATIVE * true) ** 2)
             noisy = true + rng.normal(0.0, sigma)
-            rows += [f"{name},{t:g},{species},{y:.3f}" for t, y in zip(TIMES, noisy)]
-    return "\n".join(rows) + "\n"
+            rows += [(name, f"{t:g}", species, f"{y:.3f}") for t, y in zip(TIMES, noisy)]
+    return csv_text(("run", "time", "species", "value"), rows)
 
 
 INPUT_FILES = {"model": "thiol_addition.toml", "experiment": "experiment.toml",

@@ -32,6 +32,7 @@ from pathlib import Path
 import numpy as np
 
 from kinfit.output.bundle import Bundle, write_bundle
+from kinfit.output.text import csv_text
 
 __all__ = ["SCENARIO", "SEED", "TRUTH", "MODEL_TEXT", "input_files", "write_inputs",
            "compare_with_truth", "true_spectra", "WAVELENGTHS"]
@@ -165,9 +166,8 @@ def _export(name, rng):
 def _spectra_csv(name, rng):
     conc = _simulate(SPECTRA_TIMES, name)
     y = conc @ true_spectra() + rng.normal(0.0, NOISE, (SPECTRA_TIMES.size, WAVELENGTHS.size))
-    lines = ["time," + ",".join(f"{w:g}" for w in WAVELENGTHS)]
-    lines += [f"{t:g}," + ",".join(f"{v:.5f}" for v in row) for t, row in zip(SPECTRA_TIMES, y)]
-    return "\n".join(lines) + "\n"
+    return csv_text(["time", *[f"{w:g}" for w in WAVELENGTHS]],
+                    [[f"{t:g}", *[f"{v:.5f}" for v in row]] for t, row in zip(SPECTRA_TIMES, y)])
 
 
 def input_files():
