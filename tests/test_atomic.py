@@ -38,3 +38,17 @@ def test_outputs_get_ordinary_permissions(tmp_path):
     os.umask(umask)
     write_text(tmp_path / "x.txt", "hi\n")
     assert (tmp_path / "x.txt").stat().st_mode & 0o777 == 0o666 & ~umask
+
+
+def test_jsonable_is_the_one_cleaner():
+    # numpy numbers and arrays to Python, tuples to lists, keys to text, NaN/inf to null
+    # (RFC 8259 JSON has no NaN or Infinity)
+    import numpy as np
+
+    from kinfit.core.atomic import json_text, jsonable
+
+    data = {1: (np.int64(2), np.float32(0.5)), "m": np.array([[1.0, np.nan]]),
+            "ok": np.bool_(True), "text": "ΔH‡"}
+    assert jsonable(data) == {"1": [2, 0.5], "m": [[1.0, None]], "ok": True, "text": "ΔH‡"}
+    assert json.loads(json_text(data)) == jsonable(data)
+    assert "ΔH‡" in json_text(data)                       # written as UTF-8, not escaped

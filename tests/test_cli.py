@@ -213,6 +213,29 @@ def test_simulate_from_the_fit_flags_extrapolation(tmp_path, temperature_fit):
     assert json.loads((tmp_path / "in" / "prediction.json").read_text())["flags"] == []
 
 
+def test_simulate_reads_a_fit_with_or_without_a_schema_and_refuses_an_unknown_one(
+        tmp_path, temperature_fit):
+    _, fitted = temperature_fit
+    data = json.loads((fitted / "temperature.json").read_text())
+    assert next(iter(data)) == "schema" and data["schema"] == "kinfit.temperature/1"
+    assert json.loads((fitted / "result.json").read_text())["schema"] == "kinfit.result/1"
+    args = ["simulate", str(TEMPERATURE_DEMO / "ester_hydrolysis.toml"), "-i", "ester=20",
+            "-i", "hydroxide=40", "-T", "303.15", "--draws", "5"]
+    old = {key: value for key, value in data.items() if key != "schema"}   # before versions
+    write(tmp_path, "old.json", json.dumps(old))
+    result = runner.invoke(app, args + ["--fit", str(tmp_path / "old.json"), "--out",
+                                        str(tmp_path / "a")])
+    assert result.exit_code == 0, result.output
+    assert next(iter(json.loads((tmp_path / "a" / "prediction.json").read_text()))) == "schema"
+    write(tmp_path, "new.json", json.dumps({**data, "schema": "kinfit.temperature/2"}))
+    result = runner.invoke(app, args + ["--fit", str(tmp_path / "new.json"), "--out",
+                                        str(tmp_path / "b")])
+    errors = [line for line in result.output.splitlines() if line.startswith("error:")]
+    assert result.exit_code == 2 and len(errors) == 1, result.output
+    assert "schema 'kinfit.temperature/2' is not one this kinfit reads" in errors[0]
+    assert not (tmp_path / "b").exists()
+
+
 @pytest.mark.parametrize("args, message", [
     (["-i", "ester=20"], "depend on temperature; give --temperature"),
     (["-i", "ester=20", "-T", "300"], "none is known; add reference"),

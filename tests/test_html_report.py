@@ -15,6 +15,7 @@ from typer.testing import CliRunner
 from conftest import ROOT
 from kinfit.app.cli import app
 from kinfit.core.errors import KinfitError
+from kinfit.core.formatting import CAUTIONS
 from kinfit.output.html import build_report
 
 ARTIFACTS = ROOT / "tests" / "artifacts"
@@ -119,3 +120,39 @@ def test_report_opens_in_headless_chromium(demo_folder):
         assert browser.save_screenshot(str(ARTIFACTS / "report.png"))
     finally:
         browser.quit()
+
+
+def test_report_reads_files_without_a_schema_and_refuses_an_unknown_one(tmp_path, demo_folder):
+    # files written before versions were recorded have no "schema" key: still read
+    folder = tmp_path / "old"
+    shutil.copytree(demo_folder, folder)
+    for path in folder.glob("*.json"):
+        data = json.loads(path.read_text(encoding="utf-8"))
+        assert next(iter(data)) == "schema"
+        del data["schema"]
+        path.write_text(json.dumps(data), encoding="utf-8")
+    html = build_report(folder).read_text(encoding="utf-8")
+    assert "Ranking of candidate rate laws" in html and "Provenance" in html
+    # a later major version is refused in one line, and the old report is left alone
+    before = (folder / "report.html").read_bytes()
+    data = json.loads((folder / "result.json").read_text(encoding="utf-8"))
+    (folder / "result.json").write_text(json.dumps({"schema": "kinfit.result/2", **data}))
+    result = CliRunner().invoke(app, ["report", str(folder)])
+    errors = [line for line in result.output.splitlines() if line.startswith("error:")]
+    assert result.exit_code == 2 and len(errors) == 1, result.output
+    assert "schema 'kinfit.result/2' is not one this kinfit reads" in errors[0]
+    assert (folder / "report.html").read_bytes() == before
+
+
+def test_report_shows_the_temperature_caution_whole(tmp_path, arrhenius_study):
+    from kinfit.analysis.activation import activation_parameters
+    from kinfit.output.fit import write_fit
+    from kinfit.output.temperature import temperature_bundle, temperature_cautions
+
+    result = arrhenius_study["result"]
+    acts = activation_parameters(result)
+    write_fit(tmp_path, result, extra_files=temperature_bundle(acts))
+    root = parse(build_report(tmp_path).read_text(encoding="utf-8"))
+    ns = {"h": "http://www.w3.org/1999/xhtml"}
+    cautions = [div.text for div in root.iterfind(".//h:div[@class='caution']", ns)]
+    assert cautions == [CAUTIONS, temperature_cautions(acts[0].temperature_range)]

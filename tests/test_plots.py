@@ -9,8 +9,9 @@ from conftest import MODELS
 from kinfit.inputs.experiment import load_experiment
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.mechanism import load_mechanism
-from kinfit.figures.plots import (plot_bands, plot_corner, plot_initial_rates, plot_profiles,
-                          plot_residuals, plot_traces, plot_trajectory, plot_weights)
+from kinfit.figures.fit import plot_residuals, plot_traces, plot_trajectory
+from kinfit.figures.posterior import plot_bands, plot_corner, plot_profiles
+from kinfit.figures.ranking import plot_initial_rates, plot_weights
 from kinfit.numerics.integrate import simulate
 from kinfit.core.units import Units
 
@@ -74,7 +75,7 @@ def test_layers_below_figures_do_not_import_matplotlib():
 
 def test_arrhenius_and_eyring_plots(arrhenius_study):
     from kinfit.analysis.activation import activation_parameters
-    from kinfit.figures.plots import plot_arrhenius, plot_eyring
+    from kinfit.figures.temperature import plot_arrhenius, plot_eyring
 
     acts = activation_parameters(arrhenius_study["result"])
     stage = arrhenius_study["two_stage"]
@@ -97,7 +98,7 @@ def test_arrhenius_and_eyring_plots(arrhenius_study):
 
 
 def test_prediction_plot_flags_extrapolation(arrhenius_study):
-    from kinfit.figures.plots import plot_prediction
+    from kinfit.figures.temperature import plot_prediction
     from kinfit.analysis.prediction import basis_from_fit, predict
 
     basis = basis_from_fit(arrhenius_study["result"])
@@ -185,8 +186,8 @@ def spectra_fits():
 
 
 def test_spectrum_figures(spectra_fits):
-    from kinfit.figures.plots import plot_components, plot_residual_map, plot_spectra, \
-        plot_wavelength_traces
+    from kinfit.figures.spectra import (plot_components, plot_residual_map, plot_spectra,
+                                        plot_wavelength_traces)
 
     result = spectra_fits[0]
     spectra = result.signals.spectra

@@ -1,17 +1,21 @@
-"""Text summaries and output folders."""
+"""Text summaries and output folders (kinfit.output: fit, temperature, prediction, ranking,
+posterior, signals, notebook)."""
 
 from __future__ import annotations
 
+import io
 import json
 
+import numpy as np
 import pytest
 
 from conftest import MODELS
 from kinfit.inputs.experiment import load_experiment
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.mechanism import load_mechanism
-from kinfit.output.report import (CAUTIONS, format_fit, format_posterior, format_value, write_fit,
-                           write_posterior)
+from kinfit.core.formatting import CAUTIONS, format_value
+from kinfit.output.fit import format_fit, write_fit
+from kinfit.output.posterior import format_posterior, write_posterior
 
 
 @pytest.mark.parametrize("value, se, text", [
@@ -54,12 +58,32 @@ def test_write_fit(tmp_path, result):
     assert not [p for p in (tmp_path / "out").iterdir() if ".part" in p.name]
 
 
+def test_csv_fields_are_quoted_where_needed(tmp_path):
+    # a run name with a comma survives the round trip through a general CSV reader (pandas)
+    import pandas as pd
+
+    from kinfit.output.fit import curves_csv
+
+    (tmp_path / "e.toml").write_text('[[runs]]\nname = "cold, 1"\nfile = "a.csv"\n'
+                                     'initial = { A = 1 }\n')
+    (tmp_path / "a.csv").write_text("time,A\n0,1\n5,0.61\n10,0.37\n20,0.14\n")
+    result = fit(load_experiment(tmp_path / "e.toml"),
+                 load_mechanism(MODELS / "first_order.toml"), starts=1)
+    table = pd.read_csv(io.StringIO(curves_csv(result)))
+    assert list(table.columns) == ["run", "time", "A", "P"]
+    assert set(table["run"]) == {"cold, 1"}
+    # first order, [A] = [A]0 exp(-k t) (closed form): the curve at its last time
+    k = result.values["k"]
+    last = table.iloc[-1]
+    assert last["A"] == pytest.approx(np.exp(-k * last["time"]), rel=1e-5)
+
+
 # ------------------------------------------------------------ temperature
 
 def test_temperature_summary_and_files(tmp_path, arrhenius_study):
     from kinfit.analysis.activation import activation_parameters
     from kinfit.analysis.prediction import basis_from_fit
-    from kinfit.output.report import format_activation, temperature_outputs
+    from kinfit.output.temperature import format_activation, temperature_bundle
 
     result = arrhenius_study["result"]
     acts = activation_parameters(result)
@@ -69,17 +93,17 @@ def test_temperature_summary_and_files(tmp_path, arrhenius_study):
                    "range is unsafe", "calorimetry", "process-safety review", "local codes",
                    "licensed professional practice", "thermal runaway"):
         assert needed in " ".join(text.split()), needed
-    files, summary = temperature_outputs(acts, arrhenius_study["two_stage"],
-                                         basis_from_fit(result))
-    assert set(files) == {"temperature.json", "arrhenius.png", "arrhenius.svg", "eyring.png",
-                          "eyring.svg"}
+    files = temperature_bundle(acts, arrhenius_study["two_stage"], basis_from_fit(result))
+    assert list(files) == ["temperature.json", "arrhenius.png", "arrhenius.svg", "eyring.png",
+                           "eyring.svg"]
     data = json.loads(files["temperature.json"])
-    assert set(data) == {"activation", "two_stage", "order_warnings", "prediction_basis",
-                         "cautions"}
+    assert list(data) == ["schema", "activation", "two_stage", "order_warnings",
+                          "prediction_basis", "cautions"]
+    assert data["schema"] == "kinfit.temperature/1"
     ea = data["activation"][0]["estimates"]["Ea"]
     assert ea["unit"] == "kJ/mol" and ea["stderr"] > 0 and ea["fitted"] is True
     assert "calorimetry" in data["cautions"]
-    written = write_fit(tmp_path / "out", result, extra_files=files, extra_summary=summary)
+    written = write_fit(tmp_path / "out", result, extra_files=files, extra_summary=text)
     assert {"temperature.json", "arrhenius.png", "eyring.svg"} <= {p.name for p in written}
     assert "Caution (temperature)" in (tmp_path / "out" / "summary.txt").read_text()
 
@@ -88,13 +112,14 @@ def test_write_prediction(tmp_path, arrhenius_study):
     import numpy as np
 
     from kinfit.analysis.prediction import basis_from_fit, predict
-    from kinfit.output.report import format_prediction, write_prediction
+    from kinfit.output.bundle import write_bundle
+    from kinfit.output.prediction import format_prediction, prediction_bundle
 
     basis = basis_from_fit(arrhenius_study["result"])
     pred = predict(basis, {"A": 0.8}, np.linspace(0, 100, 11), 333.15, draws=20)
     text = format_prediction(pred, "decay")
     assert text.startswith("EXTRAPOLATED") and "calorimetry" in text
-    written = write_prediction(tmp_path / "p", pred, "decay")
+    written = write_bundle(tmp_path / "p", prediction_bundle(pred, "decay"))
     assert [p.name for p in written] == ["simulation.csv", "simulation.png", "simulation.svg",
                                          "prediction.json"]
     header = (tmp_path / "p" / "simulation.csv").read_text().splitlines()[0]
@@ -104,7 +129,7 @@ def test_write_prediction(tmp_path, arrhenius_study):
 
 
 def test_format_ranking(small_ranking):
-    from kinfit.output.report import format_ranking
+    from kinfit.output.ranking import format_ranking
 
     comparison, _, _ = small_ranking
     text = format_ranking(comparison, top=3)
@@ -120,7 +145,7 @@ def test_format_ranking(small_ranking):
 
 
 def test_write_ranking(small_ranking, tmp_path):
-    from kinfit.output.report import write_ranking
+    from kinfit.output.ranking import write_ranking
 
     comparison, _, _ = small_ranking
     written = write_ranking(tmp_path / "out", comparison)
@@ -132,6 +157,12 @@ def test_write_ranking(small_ranking, tmp_path):
     assert (tmp_path / "out" / "best" / "fit.png").exists()
     csv = (tmp_path / "out" / "initial_rates.csv").read_text().splitlines()
     assert csv[0] == "run,A0,B0,rate,stderr,note" and len(csv) == 4
+    import pandas as pd                      # notes with commas stay one field each
+
+    table = pd.read_csv(tmp_path / "out" / "initial_rates.csv", keep_default_na=False)
+    assert list(table["note"]) == [r.note for r in comparison.cross_check.initial_rates.rates]
+    assert json.loads((tmp_path / "out" / "best" / "result.json").read_text())["schema"] \
+        == "kinfit.result/1"
 
 
 def test_format_posterior(line_posterior):
@@ -161,7 +192,7 @@ def test_write_posterior(line_posterior, tmp_path):
 
 def test_signal_summary_and_files():
     from conftest import DEMO
-    from kinfit.output.report import format_components, format_signals, signal_outputs
+    from kinfit.output.signals import format_components, format_signals, signals_bundle
 
     folder = DEMO / "spectra"
     mech = load_mechanism(folder / "dye_formation.toml")
@@ -171,8 +202,7 @@ def test_signal_summary_and_files():
     assert "significant components: 3" in text and "the fit used the leading 3" in text
     first = format_components(result.signals.components).splitlines()[0]
     assert "  " + first in text
-    files, summary = signal_outputs(result)
-    assert summary == format_signals(result)
+    files = signals_bundle(result)
     assert set(files) >= {"spectra.csv", "spectra.png", "spectra.svg", "components.png",
                           "residual_map.png", "residual_map_r1.csv", "wavelength_traces.png"}
     rows = files["spectra.csv"].splitlines()

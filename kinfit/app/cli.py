@@ -1,9 +1,12 @@
-"""The ``kinfit`` command: a thin layer over the Python API.
+"""The ``kinfit`` command: a thin layer over the workflows.
 
-Each command parses its arguments, calls the library and prints. A
-:class:`~kinfit.errors.KinfitError` becomes one clear line on stderr and exit
-code 2; anything else is a bug and keeps its traceback (exit code 1). Heavy
-libraries are imported inside the commands so that ``kinfit --help`` is fast.
+Each command parses its arguments, calls a workflow of
+:mod:`kinfit.app.workflows`, writes the files it returns with
+:func:`~kinfit.output.bundle.write_bundle` and prints its text. A
+:class:`~kinfit.core.errors.KinfitError` becomes one clear line on stderr and
+exit code 2; anything else is a bug and keeps its traceback (exit code 1).
+Heavy libraries are imported inside the commands so that ``kinfit --help`` is
+fast.
 """
 
 from __future__ import annotations
@@ -118,35 +121,16 @@ def fit_command(
       kinfit fit demo/spectra/spectra.toml --model demo/spectra/dye_formation.toml --wavelengths 420,560 --out results
     """
     with _handled():
-        from kinfit.inputs.experiment import load_experiment
-        from kinfit.estimation.least_squares import fit
-        from kinfit.inputs.mechanism import load_mechanism
-        from kinfit.output.report import format_fit, write_fit
+        from kinfit.app.workflows import fit_workflow
 
         if two_stage not in ("free", "global", "none"):
             raise KinfitError(f"--two-stage {two_stage}: expected free, global or none")
         chosen = _components(components)
         picks = _numbers(wavelengths, "--wavelengths")
-        exp = load_experiment(experiment)
-        mech = load_mechanism(model)
-        result = fit(exp, mech, starts=starts, seed=seed, components=chosen)
-        files, summary = {}, None
-        if mech.temperature is not None:
-            files, summary = _temperature_outputs(exp, mech, result, two_stage, seed)
-        if result.signals is not None:
-            from kinfit.output.report import signal_outputs
-
-            more, text = signal_outputs(result, picks)
-            files = {**files, **more}
-            summary = text if summary is None else f"{text}\n\n{summary}"
-        written = write_fit(out, result, extra_files=files, extra_summary=summary,
-                            provenance=_provenance(exp, mech, seed, {"starts": starts}))
-        if report:
-            written.append(_report(out))
-        typer.echo(format_fit(result))
-        if summary:
-            typer.echo("\n" + summary)
-        typer.echo(f"\nWrote {', '.join(p.name for p in written)} in {out}")
+        exp, mech = _load(experiment, model)
+        outcome = fit_workflow(exp, mech, starts=starts, seed=seed, two_stage=two_stage,
+                               components=chosen, wavelengths=picks, command=_command())
+        _finish(out, outcome, report)
 
 
 def _components(text):
@@ -174,11 +158,16 @@ def _numbers(text, option):
                           f"420,560") from None
 
 
-def _provenance(exp, mech, seed, settings):
-    from kinfit.output.provenance import collect, experiment_inputs
+def _command():
+    """The command line as recorded in provenance.json."""
+    return ["kinfit"] + sys.argv[1:]
 
-    return collect(experiment_inputs(exp, mech), seed=seed, settings=settings,
-                   command=["kinfit"] + sys.argv[1:])
+
+def _load(experiment, model):
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.inputs.mechanism import load_mechanism
+
+    return load_experiment(experiment), load_mechanism(model)
 
 
 def _report(out):
@@ -187,26 +176,19 @@ def _report(out):
     return build_report(out)
 
 
-def _temperature_outputs(exp, mech, result, two_stage, seed, posterior=None):
-    from kinfit.analysis.activation import activation_parameters, with_posterior, with_profile
-    from kinfit.analysis.prediction import basis_from_fit
-    from kinfit.output.report import temperature_outputs
-    from kinfit.analysis.two_stage import two_stage as run_two_stage
+def _write(out, bundle):
+    from kinfit.output.bundle import write_bundle
 
-    activations = activation_parameters(result)
-    if posterior is not None:      # the sampler's intervals beside the delta-method ones
-        activations = with_posterior(activations, posterior.samples, posterior.names)
-        if posterior.profiles is not None:
-            activations = with_profile(activations, {
-                name: p.intervals.get(0.95) for name, p in posterior.profiles.parameters.items()
-                if p.intervals.get(0.95) and None not in p.intervals.get(0.95)})
-    analysis = None
-    if two_stage != "none":
-        try:
-            analysis = run_two_stage(exp, mech, result, orders=two_stage, starts=1, seed=seed)
-        except KinfitError as exc:   # the global fit stands on its own
-            typer.echo(f"warning: the two-stage analysis was skipped: {exc}", err=True)
-    return temperature_outputs(activations, analysis, basis_from_fit(result))
+    return write_bundle(out, bundle)
+
+
+def _finish(out, outcome, report):
+    """Write a workflow's files (and report.html), then print its summary and the files."""
+    written = _write(out, outcome.bundle)
+    if report:
+        written.append(_report(out))
+    typer.echo(outcome.summary)
+    typer.echo(f"\nWrote {', '.join(p.name for p in written)} in {out}")
 
 
 @app.command("sample")
@@ -255,69 +237,55 @@ def sample_command(
       kinfit sample demo/experiment.toml --model demo/thiol_addition.toml --out post --steps 2000
     """
     with _handled():
-        import signal
-
-        from kinfit.inputs.experiment import load_experiment
-        from kinfit.inputs.mechanism import load_mechanism
-        from kinfit.estimation.chains import CHAIN_FILE, load_chain
-        from kinfit.estimation.posterior import sample
-        from kinfit.output.report import format_posterior, write_posterior
+        from kinfit.app.workflows import sample_workflow
+        from kinfit.estimation.chains import CHAIN_FILE
 
         if max_time is not None and not max_time > 0:
             raise KinfitError(f"--max-time {max_time}: expected a positive number of seconds")
-        if out.exists() and not out.is_dir():
-            raise KinfitError(f"--out {out}: exists and is not a folder")
-        chain_file = out / CHAIN_FILE
-        if chain_file.exists() and not resume and not overwrite:
-            state, _ = load_chain(chain_file)
-            raise KinfitError(f"{chain_file} already holds a chain ({state.n_done} steps); add "
-                              f"--resume to continue it or --overwrite to start again")
-        exp = load_experiment(experiment)
-        mech = load_mechanism(model)
-
-        def stop(signum, frame):
-            raise KeyboardInterrupt
-
-        previous = signal.signal(signal.SIGTERM, stop)
+        chain_file = _fresh_chain(out, CHAIN_FILE, resume, overwrite)
+        exp, mech = _load(experiment, model)
         bar = SamplingBar() if sys.stderr.isatty() else None
         try:
-            post = sample(exp, mech, walkers=walkers, steps=steps, seed=seed, noise=noise,
-                          moves=moves, burn=burn, thin=thin, checkpoint=chain_file,
-                          checkpoint_every=checkpoint_every, resume=resume, max_time=max_time,
-                          starts=starts, profile=profile, progress=bar)
+            with _stopped_by_sigterm():
+                outcome = sample_workflow(
+                    exp, mech, seed=seed, chain_file=chain_file, with_fit=report,
+                    command=_command(), walkers=walkers, steps=steps, noise=noise,
+                    moves=moves, burn=burn, thin=thin, checkpoint_every=checkpoint_every,
+                    resume=resume, max_time=max_time, starts=starts, profile=profile,
+                    progress=bar)
         finally:
-            signal.signal(signal.SIGTERM, previous)
             if bar is not None:
                 bar.close()
-        written = write_posterior(out, post)
-        temp_summary = None
-        if report:
-            from kinfit.output.report import write_fit
+        _finish(out, outcome, report)
 
-            exp_used = post.fit.experiment
-            files, summaries = {}, []
-            if post.fit.signals is not None:    # the solved absorptivities and spectra too
-                from kinfit.output.report import signal_outputs
 
-                signal_files, signal_summary = signal_outputs(post.fit)
-                files.update(signal_files)
-                summaries.append(signal_summary)
-            if post.fit.mechanism.temperature is not None:   # activation parameters with
-                temp_files, temp_summary = _temperature_outputs(   # posterior intervals
-                    exp_used, post.fit.mechanism, post.fit, "free", seed, post)
-                files.update(temp_files)
-                summaries.append(temp_summary)
-            provenance = _provenance(exp_used, post.fit.mechanism, seed,
-                                     {"walkers": walkers, "steps": steps, "noise": noise,
-                                      "moves": moves, "starts": starts})
-            written = write_fit(out, post.fit, extra_files=files,
-                                extra_summary="\n\n".join(summaries) or None,
-                                provenance=provenance) + written
-            written.append(_report(out))
-        typer.echo(format_posterior(post))
-        if temp_summary:
-            typer.echo("\n" + temp_summary)
-        typer.echo(f"\nWrote {', '.join(p.name for p in written)} in {out}")
+def _fresh_chain(out, name, resume, overwrite):
+    """The chain file in --out; refused if one is there and neither --resume nor --overwrite."""
+    from kinfit.estimation.chains import load_chain
+
+    if out.exists() and not out.is_dir():
+        raise KinfitError(f"--out {out}: exists and is not a folder")
+    chain_file = out / name
+    if chain_file.exists() and not resume and not overwrite:
+        state, _ = load_chain(chain_file)
+        raise KinfitError(f"{chain_file} already holds a chain ({state.n_done} steps); add "
+                          f"--resume to continue it or --overwrite to start again")
+    return chain_file
+
+
+@contextmanager
+def _stopped_by_sigterm():
+    """SIGTERM stops sampling as Ctrl-C does, so that the chain so far is kept."""
+    import signal
+
+    def stop(signum, frame):
+        raise KeyboardInterrupt
+
+    previous = signal.signal(signal.SIGTERM, stop)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
 
 
 @app.command("simulate")
@@ -364,39 +332,31 @@ def simulate_command(
     with _handled():
         import numpy as np
 
-        from kinfit.inputs.mechanism import load_mechanism
-        from kinfit.output.report import write_simulation
-        from kinfit.numerics.integrate import simulate
+        from kinfit.app.workflows import simulate_workflow
         from kinfit.core.units import Units, check_unit
+        from kinfit.inputs.mechanism import load_mechanism
 
         if not until > 0:
             raise KinfitError(f"--until {until}: expected a positive time")
         units = Units(check_unit(time_unit, "time", "--time-unit"),
                       check_unit(concentration_unit, "concentration", "--concentration-unit"))
         mech = load_mechanism(model)
+        initial_conc, overrides = _pairs(initial, "--initial"), _pairs(set_, "--set")
+        times = np.linspace(0.0, until, points)
         if temperature is not None or fit_file is not None or mech.temperature is not None:
-            _predict(mech, model, _pairs(initial, "--initial"), _pairs(set_, "--set"),
-                     np.linspace(0.0, until, points), units, temperature, temperature_unit,
-                     fit_file, draws, seed, out)
-            return
-        traj = simulate(mech, _pairs(initial, "--initial"), _pairs(set_, "--set"),
-                        np.linspace(0.0, until, points))
-        if not traj.success:
-            raise KinfitError(f"{model}: the rate equations could not be integrated with these "
-                              f"values: {traj.message}")
-        written = write_simulation(out, traj, units, mech.name)
-        last = ", ".join(f"[{s}] = {v:.4g}" for s, v in zip(traj.species, traj.conc[-1]))
-        typer.echo(f"{mech.name}: at t = {until:g} {units.time}: {last} "
-                   f"{units.concentration}")
+            outcome = _predict(mech, initial_conc, overrides, times, units, temperature,
+                               temperature_unit, fit_file, draws, seed)
+        else:
+            outcome = simulate_workflow(mech, initial_conc, overrides, times, units)
+        written = _write(out, outcome.bundle)
+        typer.echo(outcome.summary)
         typer.echo(f"Wrote {', '.join(p.name for p in written)} in {out}")
 
 
-def _predict(mech, model, initial, overrides, times, units, temperature, temperature_unit,
-             fit_file, draws, seed, out):
+def _predict(mech, initial, overrides, times, units, temperature, temperature_unit, fit_file,
+             draws, seed):
     """The prediction path of ``simulate``: temperature, fit basis, band and flags."""
-    from kinfit.analysis.prediction import predict
-    from kinfit.inputs.fit_basis import FittedRange, PredictionBasis, load_basis
-    from kinfit.output.report import format_prediction, write_prediction
+    from kinfit.app.workflows import predict_workflow, prediction_basis
     from kinfit.core.units import check_unit, to_kelvin
 
     kelvin = None
@@ -406,25 +366,15 @@ def _predict(mech, model, initial, overrides, times, units, temperature, tempera
         if not kelvin > 0:
             raise KinfitError(f"--temperature {temperature:g} {unit}: at or below absolute zero")
     if mech.temperature is not None and kelvin is None:
-        raise KinfitError(f"{model}: the model's rate constants depend on temperature; give "
-                          f"--temperature (and --temperature-unit degC for °C)")
-    if fit_file is not None:
-        if overrides:
-            raise KinfitError("--set and --fit cannot be combined: with --fit the fitted "
-                              "values and their uncertainty are used")
-        basis = load_basis(fit_file, mech)
-        typer.echo(f"Using the fit in {fit_file} (units {basis.units.time} and "
-                   f"{basis.units.concentration})")
-    else:
-        spec = mech.temperature
-        basis = PredictionBasis(mechanism=mech, values=mech.values(overrides), free_names=(),
-                                covariance=None,
-                                reference=None if spec is None else spec.reference,
-                                fitted=FittedRange(None, {}), units=units, source=str(model))
-    prediction = predict(basis, initial, times, kelvin, draws=draws, seed=seed)
-    written = write_prediction(out, prediction, mech.name)
-    typer.echo(format_prediction(prediction, mech.name))
-    typer.echo(f"Wrote {', '.join(p.name for p in written)} in {out}")
+        raise KinfitError(f"{mech.source}: the model's rate constants depend on temperature; "
+                          f"give --temperature (and --temperature-unit degC for °C)")
+    if fit_file is not None and overrides:
+        raise KinfitError("--set and --fit cannot be combined: with --fit the fitted "
+                          "values and their uncertainty are used")
+    basis, note = prediction_basis(mech, units, fit_file, overrides)
+    if note:
+        typer.echo(note)
+    return predict_workflow(basis, initial, times, kelvin, draws=draws, seed=seed)
 
 
 @app.command("components")
@@ -446,8 +396,8 @@ def components_command(
     """
     with _handled():
         from kinfit.inputs.experiment import load_experiment
-        from kinfit.output.report import format_components
         from kinfit.numerics.svd import significant_components, stacked_spectra
+        from kinfit.output.signals import format_components
 
         exp = load_experiment(experiment)
         data = stacked_spectra(exp)
@@ -483,102 +433,42 @@ def demo_command(
       kinfit demo --out kinfit-demo
     """
     with _handled():
-        from kinfit.app import demo
-        from kinfit.inputs.experiment import load_experiment
-        from kinfit.estimation.least_squares import fit
-        from kinfit.inputs.mechanism import load_mechanism
-        from kinfit.core.formatting import format_value
-        from kinfit.output.report import format_fit, write_fit
-
         import textwrap
 
+        from kinfit.app import demo, demo_spectra, workflows
+
+        command = _command()
         typer.echo(textwrap.fill(demo.SCENARIO, 88) + "\n")
-        paths = demo.write_inputs(out / "inputs")
-        exp, mech = load_experiment(paths["experiment"]), load_mechanism(paths["model"])
-        result = fit(exp, mech)
-        written = write_fit(out, result, provenance=_provenance(exp, mech, 0, {"starts": 8}))
-        typer.echo(format_fit(result))
-        typer.echo("\nRecovered against the true values used to make the data")
-        for name, true, value, se, z in demo.compare_with_truth(result):
-            typer.echo(f"  {name:<11} true {true:<8g} fitted {format_value(value, se):<24} "
-                       f"({z:+.1f} standard errors)")
+        main = workflows.demo_fit_workflow(demo.write_inputs(out / "inputs"), command)
+        written = _write(out, main.bundle)
+        typer.echo(main.summary)
         typer.echo("\n" + "=" * 88 + "\n")
-        written += _demo_ranking(out, exp, mech)
+        ranking = workflows.demo_ranking_workflow(main.result)
+        written += _write(out, ranking.bundle)
+        typer.echo(ranking.summary)
         if full:
-            written += _demo_posterior(out, exp, mech, result)
+            bar = SamplingBar() if sys.stderr.isatty() else None
+            try:
+                post = workflows.demo_posterior_workflow(main.result, progress=bar)
+            finally:
+                if bar is not None:
+                    bar.close()
+            typer.echo(post.summary)
+            written += _write(out, post.bundle)
         written.append(_report(out))
         typer.echo(f"Inputs in {out / 'inputs'}; results "
                    f"({', '.join(sorted({p.name for p in written}))}) in {out}")
-        _spectrometer_demo(out)
 
-
-def _demo_ranking(out, exp, mech):
-    """Rank the demo's free-order fit against fixed orders in thiol and acrylate."""
-    from kinfit.core.atomic import write_bytes
-    from kinfit.analysis.ranking import rank
-    from kinfit.output.report import format_ranking, write_ranking
-
-    grid = {"m_thiol": [0.5, 1.0, 1.5, 2.0], "m_acrylate": [0.5, 1.0, 1.5, 2.0]}
-    comparison = rank(exp, [mech], grid, seed=0, workers=1)
-    written = write_ranking(out / "ranking", comparison)
-    for name in ("ranking.json", "weights.png", "weights.svg", "initial_rates.png",
-                 "initial_rates.svg"):
-        source = out / "ranking" / name
-        if source.exists():                # the combined report reads them beside the fit
-            write_bytes(out / name, source.read_bytes())
-    typer.echo(format_ranking(comparison, top=5, cautions=False) + "\n")
-    return written
-
-
-def _demo_posterior(out, exp, mech, result):
-    """Sample the demo's posterior starting from its fit."""
-    from kinfit.estimation.posterior import sample
-    from kinfit.output.report import format_posterior, write_posterior
-
-    bar = SamplingBar() if sys.stderr.isatty() else None
-    try:
-        post = sample(exp, mech, walkers=32, steps=3000, seed=0, fit_result=result, progress=bar)
-    finally:
-        if bar is not None:
-            bar.close()
-    typer.echo(format_posterior(post) + "\n")
-    return write_posterior(out, post)
-
-
-def _spectrometer_demo(out):
-    """The demo's spectrometer part: absorbance at one wavelength, then full spectra."""
-    import textwrap
-
-    from kinfit.app import demo_spectra
-    from kinfit.inputs.experiment import load_experiment
-    from kinfit.estimation.least_squares import fit
-    from kinfit.inputs.mechanism import load_mechanism
-    from kinfit.core.formatting import format_value
-    from kinfit.output.report import format_fit, signal_outputs, write_fit
-
-    typer.echo("\n" + "=" * 88 + "\n" + textwrap.fill(demo_spectra.SCENARIO, 88) + "\n")
-    paths = demo_spectra.write_inputs(out / "inputs" / "spectrometer")
-    mech = load_mechanism(paths["model"])
-    fits = {}
-    for key in ("absorbance", "spectra"):
-        exp = load_experiment(paths[key])
-        result = fit(exp, mech)
-        files, summary = signal_outputs(result)
-        folder = out / "spectrometer" / key
-        write_fit(folder, result, extra_files=files, extra_summary=summary,
-                  provenance=_provenance(exp, mech, 0, {"starts": 8}))
-        _report(folder)
-        fits[key] = result
-        typer.echo(format_fit(result, cautions=False))
-        typer.echo(summary + "\n")
-    typer.echo("Recovered against the true values used to make the data")
-    for name, true, value, se, z in demo_spectra.compare_with_truth(fits["absorbance"],
-                                                                    fits["spectra"]):
-        typer.echo(f"  {name:<24} true {true:<8.4g} fitted {format_value(value, se):<22} "
-                   f"({z:+.1f} standard errors)")
-    typer.echo(f"\nInputs in {out / 'inputs' / 'spectrometer'}; results (with report.html, "
-               f"spectra.csv, spectra.png, wavelength_traces.png, residual_map.png, "
-               f"components.png) in {out / 'spectrometer'}")
+        typer.echo("\n" + "=" * 88 + "\n" + textwrap.fill(demo_spectra.SCENARIO, 88) + "\n")
+        spectrometer = workflows.spectrometer_demo_workflow(
+            demo_spectra.write_inputs(out / "inputs" / "spectrometer"), command)
+        _write(out / "spectrometer", spectrometer.bundle)
+        for key in ("absorbance", "spectra"):
+            _report(out / "spectrometer" / key)
+        typer.echo(spectrometer.summary)
+        typer.echo(f"\nInputs in {out / 'inputs' / 'spectrometer'}; results (with report.html, "
+                   f"spectra.csv, spectra.png, wavelength_traces.png, residual_map.png, "
+                   f"components.png) in {out / 'spectrometer'}")
 
 
 @app.command("rank")
@@ -627,10 +517,9 @@ def rank_command(
     """
     with _handled():
         from kinfit.analysis.lattice import parse_order_grid
-        from kinfit.analysis.ranking import rank
+        from kinfit.app.workflows import rank_workflow
         from kinfit.inputs.experiment import load_experiment
         from kinfit.inputs.mechanism import load_mechanism
-        from kinfit.output.report import format_ranking, write_ranking
 
         grid = parse_order_grid(orders)
         if not 0 < conversion <= 1:
@@ -639,26 +528,18 @@ def rank_command(
         mechanisms = [load_mechanism(m) for m in model]
         bar = ProgressBar("fitting candidates") if sys.stderr.isatty() else None
         try:
-            comparison = rank(exp, mechanisms, grid, starts=starts, lattice_starts=lattice_starts,
-                              seed=seed, workers=workers, criterion=criterion.lower(),
-                              cross_check=initial_rates, max_conversion=conversion,
-                              progress=bar)
+            outcome = rank_workflow(exp, mechanisms, grid, top=top, seed=seed,
+                                    command=_command(), starts=starts,
+                                    lattice_starts=lattice_starts, workers=workers,
+                                    criterion=criterion.lower(), cross_check=initial_rates,
+                                    max_conversion=conversion, progress=bar)
         finally:
             if bar is not None:
                 bar.close()
-        from kinfit.output.provenance import collect, experiment_inputs
-
-        inputs = experiment_inputs(exp)
-        inputs.update({f"model {i}": m.source for i, m in enumerate(mechanisms, start=1)})
-        provenance = collect(inputs, seed=seed, command=["kinfit"] + sys.argv[1:],
-                             settings={"starts": starts, "lattice_starts": lattice_starts,
-                                       "orders": {k: list(v) for k, v in grid.items()},
-                                       "criterion": criterion.lower(),
-                                       "max_conversion": conversion})
-        written = write_ranking(out, comparison, top=top, provenance=provenance)
+        written = _write(out, outcome.bundle)
         if report:
             written.append(_report(out))
-        typer.echo(format_ranking(comparison, top=top))
+        typer.echo(outcome.summary)
         typer.echo(f"\nWrote {', '.join(p.name for p in written if p.parent == out)} and "
                    f"best/ in {out}")
 

@@ -23,10 +23,11 @@ from pathlib import Path
 
 import numpy as np
 
-from kinfit.core.atomic import write_text
+from kinfit.output.bundle import Bundle, write_bundle
+from kinfit.output.text import csv_text
 
-__all__ = ["SCENARIO", "SEED", "TRUTH", "RUNS", "MODEL_TEXT", "EXPERIMENT_TEXT", "write_inputs",
-           "compare_with_truth"]
+__all__ = ["SCENARIO", "SEED", "TRUTH", "RUNS", "MODEL_TEXT", "EXPERIMENT_TEXT", "INPUT_FILES",
+           "input_files", "write_inputs", "compare_with_truth"]
 
 SCENARIO = (
     "Invented demo study: a coatings team at an imaginary company, Larkspur Resins, cures a "
@@ -103,15 +104,34 @@ def _traces_csv():
 
     mech = mechanism_from_text(MODEL_TEXT, "demo model")
     rng = np.random.default_rng(SEED)
-    rows = ["run,time,species,value"]
+    rows = []
     for name, start in RUNS.items():
         traj = simulate(mech, start, TRUTH, TIMES)
         for species in OBSERVED:
             true = traj[species]
             sigma = np.sqrt(NOISE_ABSOLUTE ** 2 + (NOISE_RELATIVE * true) ** 2)
             noisy = true + rng.normal(0.0, sigma)
-            rows += [f"{name},{t:g},{species},{y:.3f}" for t, y in zip(TIMES, noisy)]
-    return "\n".join(rows) + "\n"
+            rows += [(name, f"{t:g}", species, f"{y:.3f}") for t, y in zip(TIMES, noisy)]
+    return csv_text(("run", "time", "species", "value"), rows)
+
+
+INPUT_FILES = {"model": "thiol_addition.toml", "experiment": "experiment.toml",
+               "data": "traces.csv", "truth": "truth.toml"}
+
+
+def input_files():
+    """The demo's model, experiment, data and truth files, by the names of :data:`INPUT_FILES`.
+
+    Returns
+    -------
+    Bundle
+    """
+    truth = "\n".join(["# True parameters used to simulate traces.csv (seed "
+                       f"{SEED}); units mM and min.", "[parameters]"]
+                      + [f"{k} = {v!r}" for k, v in TRUTH.items()]) + "\n"
+    texts = {"model": MODEL_TEXT, "experiment": EXPERIMENT_TEXT, "data": _traces_csv(),
+             "truth": truth}
+    return Bundle({INPUT_FILES[key]: text for key, text in texts.items()})
 
 
 def write_inputs(folder):
@@ -122,17 +142,8 @@ def write_inputs(folder):
     dict of str to pathlib.Path
         Keys ``model``, ``experiment``, ``data``, ``truth``.
     """
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
-    truth = "\n".join(["# True parameters used to simulate traces.csv (seed "
-                       f"{SEED}); units mM and min.", "[parameters]"]
-                      + [f"{k} = {v!r}" for k, v in TRUTH.items()]) + "\n"
-    paths = {"model": folder / "thiol_addition.toml", "experiment": folder / "experiment.toml",
-             "data": folder / "traces.csv", "truth": folder / "truth.toml"}
-    for key, text in (("model", MODEL_TEXT), ("experiment", EXPERIMENT_TEXT),
-                      ("data", _traces_csv()), ("truth", truth)):
-        write_text(paths[key], text)
-    return paths
+    write_bundle(folder, input_files())
+    return {key: Path(folder) / name for key, name in INPUT_FILES.items()}
 
 
 def compare_with_truth(result):

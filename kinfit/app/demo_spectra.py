@@ -31,10 +31,11 @@ from pathlib import Path
 
 import numpy as np
 
-from kinfit.core.atomic import write_text
+from kinfit.output.bundle import Bundle, write_bundle
+from kinfit.output.text import csv_text
 
-__all__ = ["SCENARIO", "SEED", "TRUTH", "MODEL_TEXT", "write_inputs", "compare_with_truth",
-           "true_spectra", "WAVELENGTHS"]
+__all__ = ["SCENARIO", "SEED", "TRUTH", "MODEL_TEXT", "input_files", "write_inputs",
+           "compare_with_truth", "true_spectra", "WAVELENGTHS"]
 
 SCENARIO = (
     "Spectrometer part (invented): the colour lab of an imaginary company, Quillmere Dyes, "
@@ -165,22 +166,20 @@ def _export(name, rng):
 def _spectra_csv(name, rng):
     conc = _simulate(SPECTRA_TIMES, name)
     y = conc @ true_spectra() + rng.normal(0.0, NOISE, (SPECTRA_TIMES.size, WAVELENGTHS.size))
-    lines = ["time," + ",".join(f"{w:g}" for w in WAVELENGTHS)]
-    lines += [f"{t:g}," + ",".join(f"{v:.5f}" for v in row) for t, row in zip(SPECTRA_TIMES, y)]
-    return "\n".join(lines) + "\n"
+    return csv_text(["time", *[f"{w:g}" for w in WAVELENGTHS]],
+                    [[f"{t:g}", *[f"{v:.5f}" for v in row]] for t, row in zip(SPECTRA_TIMES, y)])
 
 
-def write_inputs(folder):
-    """Write the spectrometer part's model, experiments, data and truth into `folder`.
+def input_files():
+    """The spectrometer part's model, experiments, data and truth files.
 
     Returns
     -------
-    dict of str to pathlib.Path
-        Keys ``model``, ``absorbance``, ``spectra``, ``truth`` and one per
-        data file (``absorbance_r1`` ..., ``spectra_r1`` ...).
+    dict of str to (str, str)
+        Key (``model``, ``absorbance``, ``spectra``, ``truth`` and one per
+        data file: ``absorbance_r1`` ..., ``spectra_r1`` ...) to file name
+        and text.
     """
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
     rng = np.random.default_rng(SEED)
     texts = {"model": ("dye_formation.toml", MODEL_TEXT),
              "absorbance": ("absorbance.toml", _absorbance_experiment()),
@@ -198,11 +197,20 @@ def write_inputs(folder):
     truth += ["", "[dead_time_s]"] + [f"{k} = {v!r}" for k, v in DEAD_TIME.items()]
     truth += ["", "[blank]"] + [f"{k} = {v!r}" for k, v in BLANK.items()]
     texts["truth"] = ("truth.toml", "\n".join(truth) + "\n")
-    paths = {}
-    for key, (name, text) in texts.items():
-        paths[key] = folder / name
-        write_text(paths[key], text)
-    return paths
+    return texts
+
+
+def write_inputs(folder):
+    """Write the spectrometer part's model, experiments, data and truth into `folder`.
+
+    Returns
+    -------
+    dict of str to pathlib.Path
+        The keys of :func:`input_files`.
+    """
+    texts = input_files()
+    write_bundle(folder, Bundle(dict(texts.values())))
+    return {key: Path(folder) / name for key, (name, _) in texts.items()}
 
 
 def compare_with_truth(absorbance=None, spectra=None):

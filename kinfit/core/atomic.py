@@ -1,20 +1,26 @@
-"""Writing output files so that they are either complete or absent.
+"""Writing output files so that they are either complete or absent, and JSON text.
 
 Every file kinfit writes goes to a temporary file in the same folder first and
 is then renamed over the target with :func:`os.replace`, which is atomic on
 POSIX and Windows file systems. A process killed at any moment therefore
 leaves either the previous complete file or the new complete one.
+
+:func:`jsonable` is the one cleaner of data bound for JSON: numpy numbers and
+arrays become Python numbers and lists, and non-finite floats become ``null``,
+so that every file is valid JSON for every reader (Python's ``NaN`` extension
+is not).
 """
 
 from __future__ import annotations
 
 import json
+import math
 import os
 import tempfile
 from contextlib import contextmanager
 from pathlib import Path
 
-__all__ = ["atomic_path", "write_text", "write_json", "write_bytes"]
+__all__ = ["atomic_path", "write_text", "write_json", "write_bytes", "jsonable", "json_text"]
 
 _UMASK = os.umask(0)
 os.umask(_UMASK)
@@ -67,21 +73,32 @@ def write_text(target, text: str):
 
 
 def write_json(target, obj):
-    """Write `obj` as indented JSON to `target` atomically.
+    """Write `obj` as indented JSON to `target` atomically (see :func:`json_text`)."""
+    write_text(target, json_text(obj))
 
-    Non-finite floats are written as ``null`` so that the file is valid JSON
-    for every reader (Python's ``NaN`` extension is not).
+
+def json_text(obj):
+    """`obj` as indented UTF-8 JSON text with a final newline, cleaned by :func:`jsonable`."""
+    return json.dumps(jsonable(obj), indent=2, ensure_ascii=False) + "\n"
+
+
+def jsonable(obj):
+    """A JSON-ready copy of `obj`.
+
+    numpy scalars and arrays become Python numbers and (nested) lists, tuples
+    become lists, mapping keys become strings, and NaN and ±inf become
+    ``None``; everything else is returned as it is.
+
+    >>> import numpy as np
+    >>> jsonable({1: np.float64("nan"), "b": (np.int64(2), float("inf"))})
+    {'1': None, 'b': [2, None]}
     """
-    write_text(target, json.dumps(_finite(obj), indent=2, ensure_ascii=False) + "\n")
-
-
-def _finite(obj):
     if hasattr(obj, "tolist") and not isinstance(obj, (str, bytes)):
         obj = obj.tolist()  # numpy scalars and arrays
     if isinstance(obj, float):
-        return obj if obj == obj and obj not in (float("inf"), float("-inf")) else None
+        return obj if math.isfinite(obj) else None
     if isinstance(obj, dict):
-        return {str(k): _finite(v) for k, v in obj.items()}
+        return {str(k): jsonable(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
-        return [_finite(v) for v in obj]
+        return [jsonable(v) for v in obj]
     return obj

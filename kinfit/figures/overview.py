@@ -2,8 +2,9 @@
 
 from __future__ import annotations
 
-from kinfit.figures.plots import (plot_bands, plot_corner, plot_initial_rates, plot_profiles,
-                                  plot_residuals, plot_traces, plot_weights)
+from kinfit.figures.fit import plot_residuals, plot_traces
+from kinfit.figures.posterior import plot_bands, plot_corner, plot_profiles
+from kinfit.figures.ranking import plot_initial_rates, plot_weights
 
 __all__ = ["make_figures"]
 

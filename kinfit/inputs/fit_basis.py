@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from kinfit.core.schema import check_schema
 from kinfit.core.errors import KinfitError
 from kinfit.core.units import Units
 from kinfit.inputs.sources import decode
@@ -126,7 +127,8 @@ def load_basis(path, mechanism):
         raise KinfitError(f"--fit {path}: file not found; give the temperature.json written "
                           f"by kinfit fit")
     try:
-        data = json.loads(decode(path.read_bytes(), str(path)))
+        data = check_schema(json.loads(decode(path.read_bytes(), str(path))), "temperature",
+                            f"--fit {path}")
         raw = data["prediction_basis"]
         values = {str(k): float(v) for k, v in raw["parameters"].items()}
         free = tuple(str(n) for n in raw["free"])

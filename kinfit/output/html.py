@@ -7,6 +7,10 @@ files (``result.json``, ``temperature.json``, ``posterior.json``,
 ``data:`` URIs, the style sheet is inline, and nothing refers to the network,
 so the file opens anywhere and prints cleanly. Each section appears only when
 its data exist.
+
+Each JSON file is checked against the schema version this kinfit writes
+(:mod:`kinfit.core.schema`): files without a version (written before
+versions were recorded) are read, a file of another major version is refused.
 """
 
 from __future__ import annotations
@@ -16,8 +20,10 @@ import json
 import math
 from pathlib import Path
 
-from kinfit.core.atomic import write_text
 from kinfit.core.errors import KinfitError
+from kinfit.core.formatting import CAUTIONS
+from kinfit.output.bundle import write_bundle
+from kinfit.core.schema import check_schema
 
 __all__ = ["build_report", "SECTION_HEADINGS"]
 
@@ -37,15 +43,22 @@ SECTION_HEADINGS = {
 }
 
 
-def _load(folder, name):
-    path = folder / name
+# the JSON files the report reads, by schema kind (see kinfit.core.schema.SCHEMAS)
+_SOURCES = {"result": "result.json", "temperature": "temperature.json",
+            "posterior": "posterior.json", "ranking": "ranking.json", "signals": "spectra.json",
+            "provenance": "provenance.json"}
+
+
+def _load(folder, kind):
+    path = folder / _SOURCES[kind]
     if not path.is_file():
         return None
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
+        data = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError) as exc:
         raise KinfitError(f"{path}: cannot be read as JSON ({exc}); was it written by kinfit?") \
             from None
+    return check_schema(data, kind, path)
 
 
 def _figure(folder, stem, caption, alt=None):
@@ -105,9 +118,7 @@ def build_report(folder, title=None):
     folder = Path(folder)
     if not folder.is_dir():
         raise KinfitError(f"{folder}: no such folder; give the --out folder of a kinfit command")
-    data = {name: _load(folder, f"{name}.json")
-            for name in ("result", "temperature", "posterior", "ranking", "spectra",
-                         "provenance")}
+    data = {kind: _load(folder, kind) for kind in _SOURCES}
     if not any(v is not None for k, v in data.items() if k != "provenance"):
         raise KinfitError(f"{folder}: holds no kinfit results (result.json, posterior.json, "
                           f"ranking.json, ...); run kinfit fit, sample or rank with --out "
@@ -133,9 +144,7 @@ def build_report(folder, title=None):
         autoescape=jinja2.select_autoescape(["html", "j2"]), undefined=jinja2.StrictUndefined)
     html = env.get_template("report.html.j2").render(title=title, subtitle=subtitle,
                                                    sections=sections)
-    target = folder / "report.html"
-    write_text(target, html)
-    return target
+    return write_bundle(folder, {"report.html": html})[0]
 
 
 # ------------------------------------------------------------------ sections
@@ -307,7 +316,7 @@ def _initial_rates(folder, data):
 
 
 def _spectra(folder, data):
-    spectra = data["spectra"]
+    spectra = data["signals"]
     if not spectra:
         return []
     blocks = []
@@ -357,16 +366,15 @@ def _temperature(folder, data):
 
 def _warnings(folder, data):
     out = []
-    for source in ("result", "posterior", "ranking", "spectra"):
+    for source in ("result", "posterior", "ranking", "signals"):
         for w in (data[source] or {}).get("warnings", []) or []:
             out.append(_text("warning", w))
     return out
 
 
 def _cautions(folder, data):
-    from kinfit.core.formatting import CAUTIONS
-
-    texts = [CAUTIONS] + list((data["temperature"] or {}).get("cautions", []) or [])
+    extra = (data["temperature"] or {}).get("cautions") or []
+    texts = [CAUTIONS] + ([extra] if isinstance(extra, str) else list(extra))
     seen = []
     for t in texts:
         if t not in seen:

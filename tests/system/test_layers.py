@@ -48,12 +48,12 @@ def test_layer_contract_fails_on_an_upward_import(tmp_path):
     planted.write_text(planted.read_text() + textwrap.dedent("""
 
         def _planted():
-            from kinfit.output import report   # upward, and inside a function
-            return report
+            from kinfit.output import bundle   # upward, and inside a function
+            return bundle
         """))
     run = _lint(tmp_path)
     assert run.returncode != 0
-    assert "kinfit.core.errors -> kinfit.output.report" in run.stdout
+    assert "kinfit.core.errors -> kinfit.output.bundle" in run.stdout
 
 
 def _cycles(graph, modules):
