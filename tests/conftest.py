@@ -136,7 +136,8 @@ def _eyring_study(folder):
     concentrations, closed form).
     """
     import numpy as np
-    from scipy.constants import R, h, k as k_B
+    from scipy.constants import R, h
+    from scipy.constants import k as k_B
 
     truth = {"dH": 50.0, "dS": -100.0}
     rng = np.random.default_rng(20261208)
@@ -165,10 +166,10 @@ def _eyring_study(folder):
 @pytest.fixture(scope="session")
 def arrhenius_study(tmp_path_factory):
     """The Arrhenius study fitted globally (and its two-stage analysis)."""
-    from kinfit.inputs.experiment import load_experiment
-    from kinfit.estimation.least_squares import fit
-    from kinfit.inputs.mechanism import load_mechanism
     from kinfit.analysis.two_stage import two_stage
+    from kinfit.estimation.least_squares import fit
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.inputs.mechanism import load_mechanism
 
     folder = tmp_path_factory.mktemp("arrhenius")
     truth, reference = _arrhenius_study(folder)
@@ -183,8 +184,8 @@ def arrhenius_study(tmp_path_factory):
 @pytest.fixture(scope="session")
 def eyring_study(tmp_path_factory):
     """The Eyring study fitted globally."""
-    from kinfit.inputs.experiment import load_experiment
     from kinfit.estimation.least_squares import fit
+    from kinfit.inputs.experiment import load_experiment
     from kinfit.inputs.mechanism import load_mechanism
 
     folder = tmp_path_factory.mktemp("eyring")
@@ -312,9 +313,9 @@ def write_line_problem(folder, declared=True, seed=3, n=11):
 @pytest.fixture(scope="session")
 def line_posterior(tmp_path_factory):
     """A short posterior of the straight-line problem (declared noise), shared by tests."""
+    from kinfit.estimation.posterior import sample
     from kinfit.inputs.experiment import load_experiment
     from kinfit.inputs.mechanism import load_mechanism
-    from kinfit.estimation.posterior import sample
 
     paths = write_line_problem(tmp_path_factory.mktemp("line"))
     post = sample(load_experiment(paths["experiment"]), load_mechanism(paths["model"]),

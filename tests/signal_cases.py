@@ -8,11 +8,10 @@ scenarios and band shapes are invented.
 from __future__ import annotations
 
 import numpy as np
-
 from conftest import write
+
 from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import mechanism_from_text
-
 
 # ------------------------------------------- single wavelength, A -> B
 

@@ -8,10 +8,15 @@ import numpy as np
 import pytest
 import scipy.constants as sc
 
-from kinfit.analysis.activation import (activation_parameters, si_factor, with_posterior, with_profile)
+from kinfit.analysis.activation import (
+    activation_parameters,
+    si_factor,
+    with_posterior,
+    with_profile,
+)
 from kinfit.core.errors import KinfitError
-from kinfit.numerics.temperature_laws import rate_constant
 from kinfit.core.units import Units
+from kinfit.numerics.temperature_laws import rate_constant
 
 
 def test_arrhenius_study_recovers_ea_and_k_ref(arrhenius_study):

@@ -6,10 +6,15 @@ import math
 
 import numpy as np
 import pytest
-
 from conftest import MODELS, synthetic_power_law
-from kinfit.analysis.candidates import (Candidate, candidate_names, fit_candidates, unique_names,
-                                        warm_start)
+
+from kinfit.analysis.candidates import (
+    Candidate,
+    candidate_names,
+    fit_candidates,
+    unique_names,
+    warm_start,
+)
 from kinfit.analysis.lattice import order_lattice
 from kinfit.inputs.mechanism import load_mechanism, with_fixed
 

@@ -14,9 +14,9 @@ import sys
 
 import numpy as np
 import pytest
+from conftest import DATA
 from typer.testing import CliRunner
 
-from conftest import DATA
 from kinfit.app.cli import app
 
 if sys.version_info >= (3, 11):

@@ -4,11 +4,16 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from conftest import write_line_problem
+
 from kinfit.core.errors import KinfitError
-from kinfit.estimation.chains import (CHAIN_FILE, check_resumable, fingerprint, load_chain,
-                                      write_chain)
+from kinfit.estimation.chains import (
+    CHAIN_FILE,
+    check_resumable,
+    fingerprint,
+    load_chain,
+    write_chain,
+)
 from kinfit.estimation.sampler import run_ensemble
 from kinfit.estimation.space import parameter_space
 from kinfit.inputs.experiment import load_experiment

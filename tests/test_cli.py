@@ -8,10 +8,17 @@ import subprocess
 import sys
 
 import pytest
+from conftest import (
+    DEMO,
+    FIRST_ORDER_MODEL,
+    MODELS,
+    SMALL_EXPERIMENT,
+    SMALL_TRACES,
+    write,
+    write_line_problem,
+)
 from typer.testing import CliRunner
 
-from conftest import (DEMO, FIRST_ORDER_MODEL, MODELS, SMALL_EXPERIMENT, SMALL_TRACES, write,
-                      write_line_problem)
 from kinfit.app.cli import app
 
 runner = CliRunner()
@@ -319,7 +326,6 @@ def test_two_stage_that_cannot_run_is_skipped_with_a_warning(tmp_path):
 @pytest.fixture
 def rank_inputs(tmp_path):
     import numpy as np
-
     from conftest import synthetic_power_law
 
     synthetic_power_law(tmp_path, seed=5, times=np.linspace(0, 100, 9),

@@ -10,9 +10,15 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from kinfit.analysis.criteria import (criterion_weights, evidence_aicc, evidence_bic,
-                                      evidence_bic_for_best, f_test, likelihood_ratio_test,
-                                      model_averages)
+from kinfit.analysis.criteria import (
+    criterion_weights,
+    evidence_aicc,
+    evidence_bic,
+    evidence_bic_for_best,
+    f_test,
+    likelihood_ratio_test,
+    model_averages,
+)
 from kinfit.core.errors import KinfitError
 
 

@@ -4,13 +4,13 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from conftest import DEMO, SMALL_EXPERIMENT, SMALL_TRACES
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.constants import convert_temperature
 
-from conftest import DEMO, SMALL_EXPERIMENT, SMALL_TRACES
-from kinfit.inputs.experiment import initial_name, load_experiment
 from kinfit.core.errors import KinfitError
+from kinfit.inputs.experiment import initial_name, load_experiment
 
 
 def test_demo_experiment_loads():

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-
 from conftest import DEMO
+
 from kinfit.app import demo
 
 

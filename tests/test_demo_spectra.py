@@ -5,11 +5,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from conftest import DEMO
+
 from kinfit.app import demo_spectra
-from kinfit.inputs.experiment import load_experiment
 from kinfit.estimation.least_squares import fit
+from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.instrument import read_table
 from kinfit.inputs.mechanism import load_mechanism
 

@@ -6,8 +6,8 @@ import math
 
 import numpy as np
 import pytest
-
 from conftest import MODELS
+
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
 from kinfit.numerics.integrators import KIND_INITIAL, KIND_LOG_K, KIND_ORDER, OK, STIFF
 from kinfit.numerics.integrators.dopri import integrate_batch

@@ -6,8 +6,15 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from kinfit.inputs.expressions import (MAX_DEPTH, MAX_LENGTH, Affine, ParseError, parse_expression,
-                                parse_reaction, to_power_law)
+from kinfit.inputs.expressions import (
+    MAX_DEPTH,
+    MAX_LENGTH,
+    Affine,
+    ParseError,
+    parse_expression,
+    parse_reaction,
+    to_power_law,
+)
 
 
 def orders(law):

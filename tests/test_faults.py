@@ -11,14 +11,14 @@ import time
 
 import numpy as np
 import pytest
-
 from conftest import DEMO, ROOT, write
-from kinfit.inputs.experiment import load_experiment
+
 from kinfit.estimation.least_squares import fit
+from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
-from kinfit.output.fit import format_fit
 from kinfit.numerics.integrate import integrate_flat
 from kinfit.numerics.rate_system import compile_mechanism
+from kinfit.output.fit import format_fit
 
 
 @pytest.fixture

@@ -6,12 +6,12 @@ import math
 
 import numpy as np
 import pytest
-
 from conftest import DEMO, write
+
 from kinfit.app import demo
-from kinfit.inputs.experiment import load_experiment
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
+from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
 from kinfit.numerics.integrate import simulate
 

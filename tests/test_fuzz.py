@@ -17,8 +17,8 @@ import numpy as np
 from hypothesis import given
 from hypothesis import strategies as st
 
-from kinfit.inputs.experiment import load_experiment
 from kinfit.core.errors import KinfitError
+from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.expressions import ParseError, parse_reaction, to_power_law
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
 

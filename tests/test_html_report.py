@@ -10,9 +10,9 @@ import xml.etree.ElementTree as ET
 from pathlib import Path
 
 import pytest
+from conftest import ROOT
 from typer.testing import CliRunner
 
-from conftest import ROOT
 from kinfit.app.cli import app
 from kinfit.core.errors import KinfitError
 from kinfit.core.formatting import CAUTIONS

@@ -8,15 +8,18 @@ import math
 import numpy as np
 import pytest
 import statsmodels.api as sm
-
 from conftest import write
-from kinfit.inputs.experiment import load_experiment
+
+from kinfit.analysis.initial_rates import (
+    check_orders,
+    initial_rates,
+    rate_constant_at,
+    regress_orders,
+)
 from kinfit.core.errors import KinfitError
-from kinfit.analysis.initial_rates import (check_orders, initial_rates, rate_constant_at,
-                                           regress_orders)
+from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import mechanism_from_text
 from kinfit.numerics.integrate import simulate
-
 
 # ------------------------------------------------------------ regression
 

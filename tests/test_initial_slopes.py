@@ -9,7 +9,11 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 
-from kinfit.analysis.initial_slopes import initial_slope, polynomial_fit, run_initial_rate
+from kinfit.analysis.initial_slopes import (
+    initial_slope,
+    polynomial_fit,
+    run_initial_rate,
+)
 from kinfit.core.errors import KinfitError
 from kinfit.inputs.experiment import Run, Trace
 

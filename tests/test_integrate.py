@@ -15,9 +15,9 @@ import math
 
 import numpy as np
 import pytest
+from conftest import MODELS
 from scipy.integrate import solve_ivp
 
-from conftest import MODELS
 from kinfit.core.errors import KinfitError
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
 from kinfit.numerics.integrate import METHODS, describe_method, integrate_flat, simulate

@@ -6,10 +6,10 @@ import math
 
 import numpy as np
 import pytest
+from conftest import MODELS
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from conftest import MODELS
 from kinfit.analysis.lattice import order_lattice, parse_order_grid, template_for
 from kinfit.core.errors import KinfitError
 from kinfit.inputs.mechanism import load_mechanism

@@ -6,8 +6,8 @@ import math
 
 import numpy as np
 import pytest
-
 from conftest import write
+
 from kinfit.estimation.levenberg_marquardt import local_fit, trust_region_fit
 from kinfit.estimation.scale import ScaledProblem, fit_scale
 from kinfit.inputs.experiment import load_experiment

@@ -7,12 +7,17 @@ import math
 import numpy as np
 import pytest
 import statsmodels.api as sm
+from conftest import write_line_problem
 from scipy.stats import norm
 
-from conftest import write_line_problem
 from kinfit.estimation.least_squares import fit
-from kinfit.estimation.likelihood import (count_parameters, deviance, gaussian_log_likelihood,
-                                          grouped_log_likelihood, information_criteria)
+from kinfit.estimation.likelihood import (
+    count_parameters,
+    deviance,
+    gaussian_log_likelihood,
+    grouped_log_likelihood,
+    information_criteria,
+)
 from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import load_mechanism
 from kinfit.numerics.problem import build_problem

@@ -8,13 +8,19 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from scipy.optimize import least_squares, lsq_linear, nnls
+from signal_cases import (
+    AB_RUNS,
+    AB_TRUTH,
+    SPECTRA,
+    ab_signal_case,
+    closed_form_ab,
+    dead_time_case,
+    spectra_case,
+)
 
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import mechanism_from_text
-from signal_cases import (AB_RUNS, AB_TRUTH, SPECTRA, ab_signal_case, closed_form_ab,
-                          dead_time_case, spectra_case)
-
 
 # ------------------------------------- variable projection = plain fit
 

@@ -6,8 +6,8 @@ import warnings
 
 import numpy as np
 import pytest
-
 from conftest import MODELS
+
 from kinfit.core.errors import KinfitError, KinfitWarning
 from kinfit.inputs.mechanism import format_rate_law, load_mechanism, mechanism_from_text
 from kinfit.numerics.integrate import simulate

@@ -35,10 +35,10 @@ def test_one_sign_only():
 
 
 def test_checks_of_a_fit(small):
-    from kinfit.inputs.experiment import load_experiment
     from kinfit.estimation.least_squares import fit
-    from kinfit.inputs.mechanism import load_mechanism
     from kinfit.estimation.residual_checks import check_residuals
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.inputs.mechanism import load_mechanism
 
     result = fit(load_experiment(small["experiment"]), load_mechanism(small["model"]), starts=1)
     checks = check_residuals(result.experiment, result.residuals)

@@ -5,6 +5,7 @@ from __future__ import annotations
 from types import SimpleNamespace
 
 from conftest import MODELS
+
 from kinfit.analysis.nesting import nests, on_boundary, structure
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text, with_fixed
 

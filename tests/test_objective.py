@@ -7,13 +7,13 @@ import math
 import numpy as np
 import pytest
 import statsmodels.api as sm
+from conftest import write
 from scipy.stats import norm
 
-from conftest import write
-from kinfit.inputs.experiment import load_experiment
 from kinfit.estimation.least_squares import fit
-from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
 from kinfit.estimation.likelihood import log_likelihood
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
 from kinfit.numerics.problem import build_problem, residuals
 
 

@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from conftest import MODELS
-from kinfit.inputs.experiment import load_experiment
+
 from kinfit.core.errors import KinfitError
+from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
 from kinfit.numerics.observation import build_observation, observe
 

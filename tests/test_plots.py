@@ -4,16 +4,16 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from conftest import MODELS
-from kinfit.inputs.experiment import load_experiment
+
+from kinfit.core.units import Units
 from kinfit.estimation.least_squares import fit
-from kinfit.inputs.mechanism import load_mechanism
 from kinfit.figures.fit import plot_residuals, plot_traces, plot_trajectory
 from kinfit.figures.posterior import plot_bands, plot_corner, plot_profiles
 from kinfit.figures.ranking import plot_initial_rates, plot_weights
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism
 from kinfit.numerics.integrate import simulate
-from kinfit.core.units import Units
 
 
 @pytest.fixture(scope="module")
@@ -98,8 +98,8 @@ def test_arrhenius_and_eyring_plots(arrhenius_study):
 
 
 def test_prediction_plot_flags_extrapolation(arrhenius_study):
-    from kinfit.figures.temperature import plot_prediction
     from kinfit.analysis.prediction import basis_from_fit, predict
+    from kinfit.figures.temperature import plot_prediction
 
     basis = basis_from_fit(arrhenius_study["result"])
     pred = predict(basis, {"A": 0.8}, np.linspace(0, 100, 21), 333.15, draws=20)
@@ -186,8 +186,12 @@ def spectra_fits():
 
 
 def test_spectrum_figures(spectra_fits):
-    from kinfit.figures.spectra import (plot_components, plot_residual_map, plot_spectra,
-                                        plot_wavelength_traces)
+    from kinfit.figures.spectra import (
+        plot_components,
+        plot_residual_map,
+        plot_spectra,
+        plot_wavelength_traces,
+    )
 
     result = spectra_fits[0]
     spectra = result.signals.spectra

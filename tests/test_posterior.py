@@ -8,8 +8,8 @@ import math
 import numpy as np
 import pytest
 import statsmodels.api as sm
-
 from conftest import LINE_SIGMA, write, write_line_problem
+
 from kinfit.core.errors import KinfitError
 from kinfit.estimation import posterior as posterior_module
 from kinfit.estimation import profile as profile_module

@@ -9,8 +9,13 @@ import pytest
 import scipy.constants as sc
 
 from kinfit.analysis.activation import activation_parameters
+from kinfit.analysis.prediction import (
+    basis_from_fit,
+    extrapolation_flags,
+    fitted_range,
+    predict,
+)
 from kinfit.core.errors import KinfitError
-from kinfit.analysis.prediction import basis_from_fit, extrapolation_flags, fitted_range, predict
 from kinfit.inputs.fit_basis import FittedRange
 
 TIMES = np.linspace(0.0, 200.0, 41)

@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import statsmodels.api as sm
-
 from conftest import LINE_SIGMA, write_line_problem
+
 from kinfit.core.errors import KinfitError
 from kinfit.estimation import profile as profile_module
 from kinfit.estimation.least_squares import fit

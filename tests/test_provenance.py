@@ -5,6 +5,7 @@ from __future__ import annotations
 import hashlib
 
 from conftest import DEMO
+
 from kinfit import __version__
 from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import load_mechanism

@@ -7,10 +7,10 @@ import math
 import numpy as np
 import pytest
 import statsmodels.api as sm
-from statsmodels.tools.eval_measures import aicc as sm_aicc
-
 import test_objective
 from conftest import synthetic_power_law
+from statsmodels.tools.eval_measures import aicc as sm_aicc
+
 from kinfit.analysis.criteria import CRITERIA
 from kinfit.analysis.ranking import compare, rank
 from kinfit.core.errors import KinfitError

@@ -15,12 +15,22 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from conftest import MODELS
-from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text, with_fixed, with_start
+
+from kinfit.inputs.mechanism import (
+    load_mechanism,
+    mechanism_from_text,
+    with_fixed,
+    with_start,
+)
 from kinfit.numerics.integrate import simulate
-from kinfit.numerics.integrators import KIND_INITIAL, KIND_LOG_K, KIND_ORDER
-from kinfit.numerics.integrators import dopri, rosenbrock
+from kinfit.numerics.integrators import (
+    KIND_INITIAL,
+    KIND_LOG_K,
+    KIND_ORDER,
+    dopri,
+    rosenbrock,
+)
 from kinfit.numerics.rate_system import compile_mechanism
 
 

@@ -8,12 +8,12 @@ import json
 
 import numpy as np
 import pytest
-
 from conftest import MODELS
-from kinfit.inputs.experiment import load_experiment
-from kinfit.estimation.least_squares import fit
-from kinfit.inputs.mechanism import load_mechanism
+
 from kinfit.core.formatting import CAUTIONS, format_value
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism
 from kinfit.output.fit import format_fit, write_fit
 from kinfit.output.posterior import format_posterior, write_posterior
 
@@ -157,7 +157,7 @@ def test_write_ranking(small_ranking, tmp_path):
     assert (tmp_path / "out" / "best" / "fit.png").exists()
     csv = (tmp_path / "out" / "initial_rates.csv").read_text().splitlines()
     assert csv[0] == "run,A0,B0,rate,stderr,note" and len(csv) == 4
-    import pandas as pd                      # notes with commas stay one field each
+    import pandas as pd  # notes with commas stay one field each
 
     table = pd.read_csv(tmp_path / "out" / "initial_rates.csv", keep_default_na=False)
     assert list(table["note"]) == [r.note for r in comparison.cross_check.initial_rates.rates]
@@ -192,6 +192,7 @@ def test_write_posterior(line_posterior, tmp_path):
 
 def test_signal_summary_and_files():
     from conftest import DEMO
+
     from kinfit.output.signals import format_components, format_signals, signals_bundle
 
     folder = DEMO / "spectra"
@@ -215,7 +216,6 @@ def test_notebook_tables_and_figures(result):
     import xml.etree.ElementTree as ET
 
     import kinfit
-
     from kinfit.output.notebook import fit_html
 
     html = fit_html(result)

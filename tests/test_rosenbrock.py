@@ -6,8 +6,8 @@ import math
 
 import numpy as np
 import pytest
-
 from conftest import MODELS
+
 from kinfit.inputs.mechanism import load_mechanism
 from kinfit.numerics.integrators import KIND_LOG_K, OK
 from kinfit.numerics.integrators.rosenbrock import integrate_stiff

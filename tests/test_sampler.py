@@ -6,11 +6,16 @@ import math
 
 import numpy as np
 import pytest
-
 from conftest import write_line_problem
+
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
-from kinfit.estimation.sampler import LogPosterior, emcee_moves, run_ensemble, start_ball
+from kinfit.estimation.sampler import (
+    LogPosterior,
+    emcee_moves,
+    run_ensemble,
+    start_ball,
+)
 from kinfit.estimation.space import parameter_space
 from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import load_mechanism

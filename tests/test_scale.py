@@ -6,8 +6,8 @@ import math
 
 import numpy as np
 import pytest
-
 from conftest import write_line_problem
+
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.scale import ScaledProblem, fit_scale
 from kinfit.inputs.experiment import load_experiment

@@ -8,14 +8,13 @@ import math
 
 import numpy as np
 import pytest
+from signal_cases import spectra_case
 
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import mechanism_from_text
 from kinfit.numerics.problem import build_problem
-from signal_cases import spectra_case
-
 
 # ------------------------------------------------------- reduced spectra
 

@@ -7,17 +7,23 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from conftest import write
-from kinfit.estimation.likelihood import gaussian_log_likelihood
+from signal_cases import ab_signal_case, dead_time_case
+
 from kinfit.estimation.least_squares import fit
+from kinfit.estimation.likelihood import gaussian_log_likelihood
 from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import mechanism_from_text
 from kinfit.numerics.problem import build_problem
-from kinfit.numerics.signal_model import (KIND_ABSORPTIVITY, KIND_DRIFT, KIND_OFFSET, Block,
-                                          Column, absorbance, solve_block)
-from signal_cases import ab_signal_case, dead_time_case
-
+from kinfit.numerics.signal_model import (
+    KIND_ABSORPTIVITY,
+    KIND_DRIFT,
+    KIND_OFFSET,
+    Block,
+    Column,
+    absorbance,
+    solve_block,
+)
 
 # --------------------------------------------------------------- NIST Lanczos
 #

@@ -7,8 +7,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from kinfit.inputs.experiment import load_experiment
 from kinfit.core.errors import KinfitError
+from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.signals import parse_path_length, parse_signals, read_spectrum
 
 CHANNEL_EXPERIMENT = """

@@ -6,14 +6,14 @@ import math
 
 import numpy as np
 import pytest
+from conftest import write_line_problem
 from scipy import stats
 
-from conftest import write_line_problem
-from kinfit.inputs.experiment import load_experiment
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.mechanism import load_mechanism
 from kinfit.estimation.likelihood import gaussian_log_likelihood
 from kinfit.estimation.space import parameter_space
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism
 from kinfit.numerics.problem import build_problem
 
 

@@ -7,9 +7,9 @@ import math
 
 import numpy as np
 import pytest
+from signal_cases import spectra_case
 
 from kinfit.numerics.svd import significant_components
-from signal_cases import spectra_case
 
 
 def test_svd_counts_absorbing_species(tmp_path):

@@ -8,10 +8,11 @@ from pathlib import Path
 
 import pytest
 import scipy.constants as sc
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
-from kinfit.inputs import temperature as tm
 from kinfit.core.errors import KinfitError
+from kinfit.inputs import temperature as tm
 from kinfit.inputs.mechanism import mechanism_from_text
 from kinfit.inputs.temperature import ARRHENIUS, RateLaw, parse_temperature
 

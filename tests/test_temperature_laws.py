@@ -10,8 +10,13 @@ import scipy.constants as sc
 
 from kinfit.core.errors import KinfitError
 from kinfit.inputs.temperature import ARRHENIUS, EYRING, RateLaw, TemperatureSpec
-from kinfit.numerics.temperature_laws import (join_temperatures, linear_forms, ln_rate_form,
-                                              rate_constant, reference_temperature)
+from kinfit.numerics.temperature_laws import (
+    join_temperatures,
+    linear_forms,
+    ln_rate_form,
+    rate_constant,
+    reference_temperature,
+)
 
 
 def test_arrhenius_closed_form():

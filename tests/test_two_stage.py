@@ -11,8 +11,8 @@ import statsmodels.api as sm
 from scipy.stats import linregress
 
 from kinfit.analysis.activation import activation_parameters
-from kinfit.core.errors import KinfitError
 from kinfit.analysis.two_stage import order_differences, two_stage, weighted_line
+from kinfit.core.errors import KinfitError
 
 
 def test_unweighted_line_equals_scipy_linregress(arrhenius_study):

@@ -6,8 +6,14 @@ import pytest
 from scipy.constants import convert_temperature
 
 from kinfit.core.errors import KinfitError
-from kinfit.core.units import (check_unit, conversion_factor, format_power, parse_units,
-                          rate_constant_unit, to_kelvin)
+from kinfit.core.units import (
+    check_unit,
+    conversion_factor,
+    format_power,
+    parse_units,
+    rate_constant_unit,
+    to_kelvin,
+)
 
 
 @pytest.mark.parametrize("text", ["M", "mM", "uM", "µM", "μM", "nM", "mol/L", "mol/dm^3",

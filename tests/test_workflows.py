@@ -6,10 +6,16 @@ import json
 
 import numpy as np
 import pytest
-
 from conftest import MODELS, synthetic_power_law
-from kinfit.app.workflows import (fit_folder, fit_workflow, prediction_basis, predict_workflow,
-                                  rank_workflow, simulate_workflow)
+
+from kinfit.app.workflows import (
+    fit_folder,
+    fit_workflow,
+    predict_workflow,
+    prediction_basis,
+    rank_workflow,
+    simulate_workflow,
+)
 from kinfit.core.units import Units
 from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import load_mechanism

@@ -24,10 +24,10 @@ from pathlib import Path
 
 import numpy as np
 
+from kinfit.core.units import to_kelvin
 from kinfit.inputs.mechanism import mechanism_from_text
 from kinfit.numerics.integrate import simulate
 from kinfit.numerics.temperature_laws import rate_constant, reference_temperature
-from kinfit.core.units import to_kelvin
 
 SEED = 20261207
 FOLDER = Path(__file__).resolve().parent

@@ -33,9 +33,13 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.temperature import ARRHENIUS, ENERGY_UNIT, STANDARD_TEMPERATURE
-from kinfit.numerics.temperature_laws import linear_forms, ln_rate_form, reference_temperature
 from kinfit.core.units import conversion_factor, rate_constant_unit
+from kinfit.inputs.temperature import ARRHENIUS, ENERGY_UNIT, STANDARD_TEMPERATURE
+from kinfit.numerics.temperature_laws import (
+    linear_forms,
+    ln_rate_form,
+    reference_temperature,
+)
 
 __all__ = ["Estimate", "RateAt", "Activation", "activation_parameters", "with_posterior",
            "with_profile", "find_estimate", "si_factor", "run_temperatures",

@@ -16,8 +16,12 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from kinfit.analysis.initial_rates import (AGREEMENT_Z, check_orders, initial_rates,
-                                           rate_constant_at)
+from kinfit.analysis.initial_rates import (
+    AGREEMENT_Z,
+    check_orders,
+    initial_rates,
+    rate_constant_at,
+)
 
 if TYPE_CHECKING:
     from kinfit.analysis.initial_rates import InitialRates, OrderCheck

@@ -31,8 +31,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from kinfit.analysis.initial_slopes import (DEFAULT_DEGREE, InitialRate, linear_least_squares,
-                                             run_initial_rate)
+from kinfit.analysis.initial_slopes import (
+    DEFAULT_DEGREE,
+    InitialRate,
+    linear_least_squares,
+    run_initial_rate,
+)
 from kinfit.core.defaults import DEFAULT_MAX_CONVERSION
 from kinfit.core.errors import KinfitError
 from kinfit.inputs.expressions import ParseError, parse_reaction

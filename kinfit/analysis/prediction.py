@@ -37,8 +37,8 @@ from kinfit.core.errors import KinfitError
 from kinfit.inputs.experiment import Experiment, Run, Trace, initial_name
 from kinfit.inputs.fit_basis import FittedRange, PredictionBasis
 from kinfit.inputs.parameters import Role
-from kinfit.numerics.temperature_laws import ln_rate_form, reference_temperature
 from kinfit.numerics.problem import build_problem
+from kinfit.numerics.temperature_laws import ln_rate_form, reference_temperature
 
 if TYPE_CHECKING:
     from kinfit.core.units import Units

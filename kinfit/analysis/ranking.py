@@ -21,15 +21,31 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from kinfit.analysis.candidates import (MAX_CANDIDATES, Candidate, candidate_names, fit_candidates,
-                                        unique_names)
-from kinfit.analysis.criteria import (CRITERIA, SOURCES, criterion_weights, evidence_aicc,
-                                      evidence_bic, evidence_bic_for_best, model_averages)
+from kinfit.analysis.candidates import (
+    MAX_CANDIDATES,
+    Candidate,
+    candidate_names,
+    fit_candidates,
+    unique_names,
+)
+from kinfit.analysis.criteria import (
+    CRITERIA,
+    SOURCES,
+    criterion_weights,
+    evidence_aicc,
+    evidence_bic,
+    evidence_bic_for_best,
+    model_averages,
+)
 from kinfit.analysis.cross_check import CrossCheck, check_against_initial_rates
 from kinfit.analysis.lattice import order_lattice, template_for
 from kinfit.analysis.nesting import nested_tests
-from kinfit.core.defaults import (DEFAULT_CRITERION, DEFAULT_MAX_CONVERSION, DEFAULT_STARTS,
-                                  LATTICE_STARTS)
+from kinfit.core.defaults import (
+    DEFAULT_CRITERION,
+    DEFAULT_MAX_CONVERSION,
+    DEFAULT_STARTS,
+    LATTICE_STARTS,
+)
 from kinfit.core.errors import KinfitError
 
 if TYPE_CHECKING:

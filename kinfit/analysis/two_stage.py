@@ -25,13 +25,19 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from kinfit.analysis.activation import (UNITS, Estimate, find_estimate, interval_quantile,
-                                        run_temperatures, si_factor)
+from kinfit.analysis.activation import (
+    UNITS,
+    Estimate,
+    find_estimate,
+    interval_quantile,
+    run_temperatures,
+    si_factor,
+)
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
-from kinfit.inputs.temperature import ENERGY_UNIT, H, K_B, KILO, R, STANDARD_TEMPERATURE
-from kinfit.numerics.temperature_laws import rate_constant, reference_temperature
 from kinfit.inputs.parameters import Role
+from kinfit.inputs.temperature import ENERGY_UNIT, K_B, KILO, STANDARD_TEMPERATURE, H, R
+from kinfit.numerics.temperature_laws import rate_constant, reference_temperature
 
 __all__ = ["LineFit", "weighted_line", "TemperatureGroup", "TwoStageLaw", "TwoStage",
            "two_stage", "order_differences", "ORDERS"]

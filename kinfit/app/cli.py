@@ -19,10 +19,19 @@ from typing import List, Optional
 
 import typer
 
-from kinfit.core.defaults import (CHECKPOINT_EVERY, DEFAULT_CRITERION, DEFAULT_DRAWS,
-                                  DEFAULT_MAX_CONVERSION, DEFAULT_MOVES, DEFAULT_SEED,
-                                  DEFAULT_STARTS, DEFAULT_STEPS, DEFAULT_WALKERS, LATTICE_STARTS)
 from kinfit.app.progress import ProgressBar, SamplingBar
+from kinfit.core.defaults import (
+    CHECKPOINT_EVERY,
+    DEFAULT_CRITERION,
+    DEFAULT_DRAWS,
+    DEFAULT_MAX_CONVERSION,
+    DEFAULT_MOVES,
+    DEFAULT_SEED,
+    DEFAULT_STARTS,
+    DEFAULT_STEPS,
+    DEFAULT_WALKERS,
+    LATTICE_STARTS,
+)
 from kinfit.core.errors import KinfitError, KinfitWarning
 
 app = typer.Typer(

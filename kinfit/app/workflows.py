@@ -18,9 +18,16 @@ import warnings
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from kinfit.core.defaults import (DEFAULT_CRITERION, DEFAULT_MAX_CONVERSION, DEFAULT_MOVES,
-                                  DEFAULT_SEED, DEFAULT_STARTS, DEFAULT_STEPS, DEFAULT_WALKERS,
-                                  LATTICE_STARTS)
+from kinfit.core.defaults import (
+    DEFAULT_CRITERION,
+    DEFAULT_MAX_CONVERSION,
+    DEFAULT_MOVES,
+    DEFAULT_SEED,
+    DEFAULT_STARTS,
+    DEFAULT_STEPS,
+    DEFAULT_WALKERS,
+    LATTICE_STARTS,
+)
 from kinfit.core.errors import KinfitError, KinfitWarning
 from kinfit.core.formatting import format_value
 from kinfit.output.bundle import Bundle
@@ -105,7 +112,11 @@ def provenance_of(experiment, mechanism=None, seed=None, settings=None, command=
 def _temperature_analysis(result, two_stage, seed, posterior):
     """Activation parameters of a fit (with the posterior's intervals) and the two-stage
     analysis, or None for it when it is not wanted or cannot run."""
-    from kinfit.analysis.activation import activation_parameters, with_posterior, with_profile
+    from kinfit.analysis.activation import (
+        activation_parameters,
+        with_posterior,
+        with_profile,
+    )
     from kinfit.analysis.two_stage import two_stage as run_two_stage
 
     activations = activation_parameters(result)

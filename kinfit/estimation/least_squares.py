@@ -34,24 +34,27 @@ import numpy as np
 
 from kinfit.core.defaults import DEFAULT_STARTS
 from kinfit.core.errors import KinfitError
-from kinfit.estimation.linear_unknowns import resolve_signals
-from kinfit.estimation.likelihood import (count_parameters, gaussian_log_likelihood,
-                                          information_criteria)
-from kinfit.estimation.residual_checks import check_residuals
 from kinfit.estimation.levenberg_marquardt import local_fit
+from kinfit.estimation.likelihood import (
+    count_parameters,
+    gaussian_log_likelihood,
+    information_criteria,
+)
+from kinfit.estimation.linear_unknowns import resolve_signals
+from kinfit.estimation.residual_checks import check_residuals
 from kinfit.estimation.scale import ScaledProblem, fit_scale
 from kinfit.inputs.mechanism import format_rate_law
 from kinfit.inputs.parameters import Role
 from kinfit.inputs.temperature import ENERGY_UNIT
-from kinfit.numerics.problem import build_problem
 from kinfit.numerics.integrate import Trajectory, describe_method
+from kinfit.numerics.problem import build_problem
 
 if TYPE_CHECKING:
+    from kinfit.estimation.linear_unknowns import SignalFit
     from kinfit.estimation.residual_checks import TraceCheck
     from kinfit.inputs.experiment import Experiment
     from kinfit.inputs.mechanism import Mechanism
     from kinfit.numerics.problem import Problem
-    from kinfit.estimation.linear_unknowns import SignalFit
 
 __all__ = ["FitResult", "ProblemSettings", "fit", "parameter_unit"]
 

@@ -29,10 +29,16 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from kinfit.core.errors import KinfitError
-from kinfit.numerics.signal_model import (KIND_ABSORPTIVITY, KIND_DRIFT, KIND_OFFSET,
-                                          one_blas_thread, project_jacobian, raw_jacobian,
-                                          solve_block)
+from kinfit.numerics.signal_model import (
+    KIND_ABSORPTIVITY,
+    KIND_DRIFT,
+    KIND_OFFSET,
+    project_jacobian,
+    raw_jacobian,
+    solve_block,
+)
 from kinfit.numerics.svd import Components
+from kinfit.numerics.threads import one_blas_thread
 
 __all__ = ["resolve_signals", "SignalFit", "Coefficient", "ResolvedSpectra", "ChannelModel"]
 

@@ -37,15 +37,31 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from kinfit.core.defaults import (CHECKPOINT_EVERY, DEFAULT_MOVES, DEFAULT_STARTS, DEFAULT_STEPS,
-                                  DEFAULT_WALKERS)
+from kinfit.core.defaults import (
+    CHECKPOINT_EVERY,
+    DEFAULT_MOVES,
+    DEFAULT_STARTS,
+    DEFAULT_STEPS,
+    DEFAULT_WALKERS,
+)
 from kinfit.core.errors import KinfitError
-from kinfit.estimation.chains import (CHAIN_FILE, ChainState, check_resumable, fingerprint,
-                                      load_chain, write_chain)
+from kinfit.estimation.chains import (
+    CHAIN_FILE,
+    ChainState,
+    check_resumable,
+    fingerprint,
+    load_chain,
+    write_chain,
+)
 from kinfit.estimation.diagnostics import diagnose
 from kinfit.estimation.least_squares import FitResult, fit, parameter_unit
 from kinfit.estimation.profile import profile_intervals
-from kinfit.estimation.sampler import LogPosterior, emcee_moves, run_ensemble, start_ball
+from kinfit.estimation.sampler import (
+    LogPosterior,
+    emcee_moves,
+    run_ensemble,
+    start_ball,
+)
 from kinfit.estimation.space import parameter_space
 from kinfit.inputs.parameters import Role
 

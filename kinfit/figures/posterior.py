@@ -5,7 +5,13 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.figure import Figure
 
-from kinfit.figures.style import PALETTE, axis_label, panel_grid, run_title, species_styles
+from kinfit.figures.style import (
+    PALETTE,
+    axis_label,
+    panel_grid,
+    run_title,
+    species_styles,
+)
 
 __all__ = ["plot_corner", "plot_bands", "plot_profiles"]
 

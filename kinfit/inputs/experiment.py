@@ -26,15 +26,19 @@ import math
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from kinfit.core.errors import KinfitError, where
-from kinfit.inputs.signals import parse_path_length, parse_signals, read_spectrum
-from kinfit.inputs.tables import Trace, read_long, read_wide
-from kinfit.inputs.sources import find_line, load_toml, resolve_file
 from kinfit.core.units import Units, parse_units, to_kelvin
 from kinfit.inputs.parameters import Parameter, Role
+from kinfit.inputs.signals import parse_path_length, parse_signals, read_spectrum
+from kinfit.inputs.sources import find_line, load_toml, resolve_file
+from kinfit.inputs.tables import Trace, read_long, read_wide
+
+if TYPE_CHECKING:
+    from kinfit.inputs.signals import SignalSpec, Spectrum
 
 __all__ = ["Run", "Noise", "Experiment", "load_experiment", "initial_name",
            "offset_name", "MIN_POINTS"]
@@ -84,7 +88,7 @@ class Run:
     source: str = ""
     path_length: float | None = None
     start: float | None = None
-    spectrum: object = None
+    spectrum: Spectrum | None = None
 
     @property
     def n_points(self):
@@ -156,7 +160,7 @@ class Experiment:
     source: str = "<experiment>"
     description: str = ""
     data_files: tuple[str, ...] = ()
-    signals: object = None
+    signals: SignalSpec | None = None
 
     @property
     def n_points(self):

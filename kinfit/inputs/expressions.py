@@ -23,6 +23,7 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass, field
+from typing import Union
 
 __all__ = ["ParseError", "Number", "Name", "Conc", "Unary", "Binary", "parse_expression",
            "Affine", "PowerLaw", "to_power_law", "Reaction", "parse_reaction",
@@ -110,14 +111,17 @@ class Conc:
 @dataclass(frozen=True)
 class Unary:
     op: str
-    operand: object
+    operand: Node
 
 
 @dataclass(frozen=True)
 class Binary:
     op: str
-    left: object
-    right: object
+    left: Node
+    right: Node
+
+
+Node = Union[Number, Name, Conc, Unary, Binary]   # a node of the expression tree
 
 
 class _Parser:

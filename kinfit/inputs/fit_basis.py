@@ -18,8 +18,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from kinfit.core.schema import check_schema
 from kinfit.core.errors import KinfitError
+from kinfit.core.schema import check_schema
 from kinfit.core.units import Units
 from kinfit.inputs.sources import decode
 

@@ -21,12 +21,19 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 from kinfit.core.errors import KinfitError, KinfitWarning, where
-from kinfit.inputs.expressions import (PARAMETER_NAME, SPECIES_NAME, ParseError, PowerLaw, Reaction,
-                          parse_reaction, to_power_law)
+from kinfit.inputs.expressions import (
+    PARAMETER_NAME,
+    SPECIES_NAME,
+    ParseError,
+    PowerLaw,
+    Reaction,
+    parse_reaction,
+    to_power_law,
+)
+from kinfit.inputs.parameters import Parameter, Role
 from kinfit.inputs.priors import parse_prior
 from kinfit.inputs.sources import find_line, load_toml
 from kinfit.inputs.temperature import TemperatureSpec, check_roles, parse_temperature
-from kinfit.inputs.parameters import Parameter, Role
 
 __all__ = ["Parameter", "Step", "Mechanism", "load_mechanism", "mechanism_from_text",
            "format_rate_law", "with_fixed", "with_start"]

@@ -12,6 +12,10 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from enum import Enum
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from kinfit.inputs.priors import Prior
 
 __all__ = ["Role", "Parameter"]
 
@@ -58,4 +62,4 @@ class Parameter:
     max: float = math.inf
     vary: bool = True
     role: Role = Role.RATE_CONSTANT
-    prior: object = None
+    prior: Prior | None = None

@@ -81,7 +81,7 @@ class SpectraSpec:
     """
 
     absorbers: tuple
-    components: object = "auto"
+    components: str | int = "auto"
     noise: float | None = None
     wavelength_unit: str = "nm"
 

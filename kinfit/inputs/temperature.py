@@ -43,9 +43,9 @@ from dataclasses import dataclass
 from scipy import constants as _constants
 
 from kinfit.core.errors import KinfitError, where
-from kinfit.inputs.sources import find_line
 from kinfit.core.units import to_kelvin
 from kinfit.inputs.parameters import Role
+from kinfit.inputs.sources import find_line
 
 __all__ = ["R", "K_B", "H", "KILO", "STANDARD_TEMPERATURE", "ARRHENIUS", "EYRING",
            "ENERGY_UNIT", "RateLaw", "TemperatureSpec", "parse_temperature", "check_roles"]

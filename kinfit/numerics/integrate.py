@@ -28,8 +28,19 @@ from dataclasses import dataclass
 import numpy as np
 
 from kinfit.core.errors import KinfitError
-from kinfit.numerics.integrators import (ATOL, AVAILABLE, BLOWUP, FAILED, MAX_RHS_CALLS, OK, RTOL,
-                                         STIFF, dopri, rosenbrock, scipy_ivp)
+from kinfit.numerics.integrators import (
+    ATOL,
+    AVAILABLE,
+    BLOWUP,
+    FAILED,
+    MAX_RHS_CALLS,
+    OK,
+    RTOL,
+    STIFF,
+    dopri,
+    rosenbrock,
+    scipy_ivp,
+)
 from kinfit.numerics.rate_system import compile_mechanism
 
 __all__ = ["Method", "METHODS", "describe_method", "Trajectory", "FlatSolution",

@@ -13,17 +13,31 @@ stated in :mod:`kinfit.estimation.likelihood`.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from kinfit.core.errors import KinfitError
-from kinfit.numerics.observation import build_observation
-from kinfit.numerics.signal_build import build_signal_model
 from kinfit.numerics.integrate import integrate_flat, simulate_runs
-from kinfit.numerics.integrators import (ATOL, KIND_INITIAL, KIND_LOG_K, KIND_ORDER, MAX_RHS_CALLS,
-                                         RTOL)
+from kinfit.numerics.integrators import (
+    ATOL,
+    KIND_INITIAL,
+    KIND_LOG_K,
+    KIND_ORDER,
+    MAX_RHS_CALLS,
+    RTOL,
+)
+from kinfit.numerics.observation import build_observation
 from kinfit.numerics.rate_system import RateSystem, compile_mechanism
+from kinfit.numerics.signal_build import build_signal_model
 from kinfit.numerics.temperature_laws import join_temperatures
+
+if TYPE_CHECKING:
+    from kinfit.inputs.experiment import Experiment
+    from kinfit.inputs.mechanism import Mechanism
+    from kinfit.numerics.observation import Observation
+    from kinfit.numerics.signal_model import SignalModel
+    from kinfit.numerics.temperature_laws import TemperatureLayout
 
 __all__ = ["Problem", "build_problem", "residuals", "FAILED_RESIDUAL"]
 
@@ -61,18 +75,18 @@ class Problem:
         is evaluated at.
     """
 
-    mechanism: object
-    experiment: object
-    observation: object
+    mechanism: Mechanism
+    experiment: Experiment
+    observation: Observation
     parameters: tuple
     system: RateSystem
     method: str = "auto"
     rtol: float = RTOL
     atol: float = ATOL
     max_rhs: int = MAX_RHS_CALLS
-    temperature: object = None
-    signal: object = None
-    _points: object = field(default=None, repr=False)
+    temperature: TemperatureLayout | None = None
+    signal: SignalModel | None = None
+    _points: Observation | None = field(default=None, repr=False)
     _conc0: np.ndarray = field(default=None, repr=False)
     _initial_map: tuple = field(default=(), repr=False)
     _offset_map: tuple = field(default=(), repr=False)

@@ -22,9 +22,16 @@ import numpy as np
 
 from kinfit.core.errors import KinfitError
 from kinfit.numerics.observation import Observation, build_observation
-from kinfit.numerics.signal_model import (KIND_ABSORPTIVITY, KIND_DRIFT, KIND_OFFSET, Block,
-                                          Column, SignalModel, one_blas_thread)
+from kinfit.numerics.signal_model import (
+    KIND_ABSORPTIVITY,
+    KIND_DRIFT,
+    KIND_OFFSET,
+    Block,
+    Column,
+    SignalModel,
+)
 from kinfit.numerics.svd import significant_components
+from kinfit.numerics.threads import one_blas_thread
 
 __all__ = ["build_signal_model"]
 

@@ -62,11 +62,19 @@ with β profiled out (β at its conditional optimum for each θ).
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING
 
 import numpy as np
 
+from kinfit.numerics.threads import one_blas_thread
+
+if TYPE_CHECKING:
+    from kinfit.core.units import Units
+    from kinfit.inputs.signals import SignalSpec
+    from kinfit.numerics.svd import Components
+
 __all__ = ["SignalModel", "Block", "Column", "Factors", "Solution", "absorbance", "solve_block",
-           "project_jacobian", "raw_jacobian", "one_blas_thread",
+           "project_jacobian", "raw_jacobian",
            "KIND_ABSORPTIVITY", "KIND_OFFSET", "KIND_DRIFT"]
 
 KIND_ABSORPTIVITY = "absorptivity"
@@ -74,24 +82,6 @@ KIND_OFFSET = "offset"
 KIND_DRIFT = "drift"
 _RCOND = 1e-10           # singular values of the column-scaled design below this are zero
 _CHUNK = 2_000_000       # largest sets x channels x rows handled at once
-_CONTROLLER = []
-
-
-def one_blas_thread():
-    """A context running BLAS/LAPACK on one thread (threadpoolctl).
-
-    The matrices here are small (a design of a few columns, spectra of a few
-    hundred wavelengths); on a shared two-core machine the multi-threaded SVD
-    of a 1200 x 300 matrix was measured at 0.4-2.4 s against 0.03 s on one
-    thread (tests/benchmarks/bench_spectra.py).
-    """
-    if not _CONTROLLER:
-        from threadpoolctl import ThreadpoolController
-
-        _CONTROLLER.append(ThreadpoolController())
-    return _CONTROLLER[0].limit(limits=1, user_api="blas")
-
-
 def absorbance(epsilon, path_length, conc):
     """Beer–Lambert law: A = ε ℓ c, summed over absorbers.
 
@@ -405,9 +395,9 @@ class SignalModel:
     conc_flat: np.ndarray
     conc_inner: np.ndarray
     n_points: int
-    components: object
-    spec: object
-    units: object
+    components: Components | None
+    spec: SignalSpec
+    units: Units
     run_names: tuple
     notes: tuple = ()
     exact: bool = True

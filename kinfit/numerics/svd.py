@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from kinfit.numerics.signal_model import one_blas_thread
+from kinfit.numerics.threads import one_blas_thread
 
 __all__ = ["Components", "stacked_spectra", "significant_components"]
 

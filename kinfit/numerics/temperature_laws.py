@@ -30,8 +30,15 @@ from dataclasses import dataclass
 import numpy as np
 
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.temperature import (ARRHENIUS, EYRING, H, K_B, KILO, R,
-                                       STANDARD_TEMPERATURE)
+from kinfit.inputs.temperature import (
+    ARRHENIUS,
+    EYRING,
+    K_B,
+    KILO,
+    STANDARD_TEMPERATURE,
+    H,
+    R,
+)
 
 __all__ = ["reference_temperature", "TemperatureLayout", "join_temperatures", "rate_constant",
            "Linear", "linear_forms", "ln_rate_form"]

@@ -11,8 +11,8 @@ from __future__ import annotations
 import textwrap
 
 from kinfit.core.formatting import format_value
-from kinfit.output.bundle import Bundle, figure_files, write_bundle
 from kinfit.core.schema import schema_json
+from kinfit.output.bundle import Bundle, figure_files, write_bundle
 from kinfit.output.text import closing_lines, csv_text, text_table
 
 __all__ = ["format_fit", "curves_csv", "fit_bundle", "write_fit"]

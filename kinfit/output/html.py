@@ -22,8 +22,8 @@ from pathlib import Path
 
 from kinfit.core.errors import KinfitError
 from kinfit.core.formatting import CAUTIONS
-from kinfit.output.bundle import write_bundle
 from kinfit.core.schema import check_schema
+from kinfit.output.bundle import write_bundle
 
 __all__ = ["build_report", "SECTION_HEADINGS"]
 

@@ -13,8 +13,8 @@ import textwrap
 from pathlib import Path
 
 from kinfit.core.formatting import format_value
-from kinfit.output.bundle import Bundle, figure_files, write_bundle
 from kinfit.core.schema import schema_json
+from kinfit.output.bundle import Bundle, figure_files, write_bundle
 from kinfit.output.text import closing_lines, text_table
 
 __all__ = ["format_posterior", "chain_bytes", "posterior_bundle", "write_posterior"]

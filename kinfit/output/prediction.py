@@ -12,8 +12,8 @@ from __future__ import annotations
 import numpy as np
 
 from kinfit.core.formatting import CAUTIONS, format_value
-from kinfit.output.bundle import Bundle, figure_files
 from kinfit.core.schema import schema_json
+from kinfit.output.bundle import Bundle, figure_files
 from kinfit.output.temperature import temperature_cautions
 from kinfit.output.text import csv_text, interval_text, kelvin_celsius, wrapped
 

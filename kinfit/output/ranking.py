@@ -12,9 +12,9 @@ import math
 
 from kinfit.analysis.criteria import SOURCES
 from kinfit.core.formatting import CAUTIONS, format_value
+from kinfit.core.schema import schema_json
 from kinfit.output.bundle import Bundle, figure_files, write_bundle
 from kinfit.output.fit import fit_bundle
-from kinfit.core.schema import schema_json
 from kinfit.output.text import csv_text, text_table, wrapped
 
 __all__ = ["format_ranking", "format_cross_check", "initial_rates_csv", "ranking_bundle",

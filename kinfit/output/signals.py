@@ -14,8 +14,8 @@ import textwrap
 import numpy as np
 
 from kinfit.core.formatting import format_value
-from kinfit.output.bundle import Bundle, figure_files
 from kinfit.core.schema import schema_json
+from kinfit.output.bundle import Bundle, figure_files
 from kinfit.output.text import csv_text, text_table
 
 __all__ = ["format_components", "format_signals", "spectra_csv", "matrix_csv",
@@ -153,8 +153,12 @@ def signals_bundle(result, wavelengths=None):
     -------
     Bundle
     """
-    from kinfit.figures.spectra import (plot_components, plot_residual_map, plot_spectra,
-                                        plot_wavelength_traces)
+    from kinfit.figures.spectra import (
+        plot_components,
+        plot_residual_map,
+        plot_spectra,
+        plot_wavelength_traces,
+    )
     from kinfit.figures.wavelengths import choose_wavelengths
 
     sig = result.signals

@@ -12,9 +12,15 @@ from __future__ import annotations
 import textwrap
 
 from kinfit.core.formatting import format_value
-from kinfit.output.bundle import Bundle, figure_files
 from kinfit.core.schema import schema_json
-from kinfit.output.text import celsius, interval_text, kelvin_celsius, text_table, wrapped
+from kinfit.output.bundle import Bundle, figure_files
+from kinfit.output.text import (
+    celsius,
+    interval_text,
+    kelvin_celsius,
+    text_table,
+    wrapped,
+)
 
 __all__ = ["temperature_cautions", "format_activation", "temperature_bundle"]
 
@@ -150,8 +156,8 @@ def temperature_bundle(activations, two_stage=None, basis=None):
     -------
     Bundle
     """
-    from kinfit.inputs.fit_basis import basis_to_dict
     from kinfit.figures.temperature import plot_arrhenius, plot_eyring
+    from kinfit.inputs.fit_basis import basis_to_dict
 
     span = activations[0].temperature_range if activations else None
     data = {

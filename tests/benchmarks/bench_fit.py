@@ -24,8 +24,8 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.estimation.least_squares import fit  # noqa: E402
+from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text  # noqa: E402
 from kinfit.numerics.integrate import simulate  # noqa: E402
 

@@ -36,8 +36,8 @@ sys.path.insert(0, str(ROOT))
 from kinfit.analysis.candidates import fit_candidates, warm_start  # noqa: E402
 from kinfit.analysis.lattice import order_lattice  # noqa: E402
 from kinfit.analysis.ranking import rank  # noqa: E402
-from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.estimation.least_squares import fit  # noqa: E402
+from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.inputs.mechanism import load_mechanism  # noqa: E402
 
 GRID = {"m_thiol": (0, 0.5, 1, 1.5, 2), "m_acrylate": (0, 0.5, 1, 1.5, 2)}

@@ -25,10 +25,10 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.estimation.least_squares import fit  # noqa: E402
-from kinfit.inputs.mechanism import load_mechanism  # noqa: E402
 from kinfit.estimation.posterior import sample  # noqa: E402
+from kinfit.inputs.experiment import load_experiment  # noqa: E402
+from kinfit.inputs.mechanism import load_mechanism  # noqa: E402
 
 
 def main(argv=None):

@@ -35,11 +35,11 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from bench_fit import POWER_LAW  # noqa: E402  (the power-law case of the fit benchmark)
 
-from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.estimation.least_squares import fit  # noqa: E402
+from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.inputs.mechanism import mechanism_from_text  # noqa: E402
-from kinfit.numerics.problem import build_problem  # noqa: E402
 from kinfit.numerics.integrate import simulate  # noqa: E402
+from kinfit.numerics.problem import build_problem  # noqa: E402
 
 DYE = """
 name = "P + R -> I -> D"

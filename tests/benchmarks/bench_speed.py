@@ -39,12 +39,12 @@ from scipy.optimize import least_squares
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.estimation.least_squares import fit  # noqa: E402
 from kinfit.estimation.likelihood import gaussian_log_likelihood  # noqa: E402
+from kinfit.inputs.experiment import load_experiment  # noqa: E402
 from kinfit.inputs.mechanism import mechanism_from_text  # noqa: E402
-from kinfit.numerics.problem import build_problem  # noqa: E402
 from kinfit.numerics.integrate import simulate  # noqa: E402
+from kinfit.numerics.problem import build_problem  # noqa: E402
 
 RTOL, ATOL = 1e-8, 1e-12     # the same tolerances as kinfit's defaults
 SIGMA = 0.005                 # declared noise of the synthetic data

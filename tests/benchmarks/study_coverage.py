@@ -77,9 +77,9 @@ def one_replicate(args):
     seed, walkers, steps, starts = args
     import warnings
 
+    from kinfit.estimation.posterior import compare_intervals, sample
     from kinfit.inputs.experiment import load_experiment
     from kinfit.inputs.mechanism import load_mechanism
-    from kinfit.estimation.posterior import compare_intervals, sample
 
     warnings.simplefilter("ignore")
     with tempfile.TemporaryDirectory() as tmp:

@@ -32,6 +32,7 @@ sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "tests"))
 
 from conftest import synthetic_power_law  # noqa: E402
+
 from kinfit.analysis.ranking import rank  # noqa: E402
 
 TRUTH = {"m": 1.0, "n": 2.0}

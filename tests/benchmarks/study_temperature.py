@@ -31,10 +31,10 @@ from conftest import _arrhenius_study  # noqa: E402  (the same generator as the 
 
 def replicate(seed, folder):
     from kinfit.analysis.activation import activation_parameters
-    from kinfit.inputs.experiment import load_experiment
-    from kinfit.estimation.least_squares import fit
-    from kinfit.inputs.mechanism import load_mechanism
     from kinfit.analysis.two_stage import two_stage
+    from kinfit.estimation.least_squares import fit
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.inputs.mechanism import load_mechanism
 
     truth, _ = _arrhenius_study(folder, seed=seed)
     exp = load_experiment(folder / "experiment.toml")

@@ -34,8 +34,14 @@ import math
 import numpy as np
 
 from kinfit.numerics.integrators import BLOWUP, FAILED, KIND_INITIAL, OK, STIFF
-from kinfit.numerics.integrators._kernels import (BLOWUP_FACTOR, contiguous, extent_rhs,
-                                                  extent_rhs_call, njit, to_conc)
+from kinfit.numerics.integrators._kernels import (
+    BLOWUP_FACTOR,
+    contiguous,
+    extent_rhs,
+    extent_rhs_call,
+    njit,
+    to_conc,
+)
 
 __all__ = ["NAME", "integrate_batch", "right_hand_side"]
 

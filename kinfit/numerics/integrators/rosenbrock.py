@@ -21,10 +21,22 @@ import math
 
 import numpy as np
 
-from kinfit.numerics.integrators import (BLOWUP, FAILED, KIND_INITIAL, KIND_LOG_K, KIND_ORDER, OK,
-                                         STIFF)
-from kinfit.numerics.integrators._kernels import (BLOWUP_FACTOR, contiguous, njit, plain_jacobian,
-                                                  plain_rhs)
+from kinfit.numerics.integrators import (
+    BLOWUP,
+    FAILED,
+    KIND_INITIAL,
+    KIND_LOG_K,
+    KIND_ORDER,
+    OK,
+    STIFF,
+)
+from kinfit.numerics.integrators._kernels import (
+    BLOWUP_FACTOR,
+    contiguous,
+    njit,
+    plain_jacobian,
+    plain_rhs,
+)
 
 __all__ = ["NAME", "integrate_stiff", "right_hand_side"]
 

@@ -25,7 +25,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from kinfit.core.errors import KinfitError
-from kinfit.numerics.integrators import ATOL, KIND_LOG_K, KIND_ORDER, MAX_RHS_CALLS, RTOL
+from kinfit.numerics.integrators import (
+    ATOL,
+    KIND_LOG_K,
+    KIND_ORDER,
+    MAX_RHS_CALLS,
+    RTOL,
+)
 from kinfit.numerics.rate_system import jacobian, rhs
 
 __all__ = ["METHODS", "Integration", "integrate", "integrate_one"]
