@@ -91,7 +91,7 @@ def small(files):
 STUDY_TEMPERATURES = (288.15, 298.15, 308.15, 318.15)      # K
 
 
-def _arrhenius_study(folder, seed=20261207):
+def make_arrhenius_study(folder, seed=20261207):
     """A -> P, free order m (shared), k_ref and Ea known; units M and s.
 
     Truth: m = 1, Ea = 60 kJ/mol, k_ref = 0.02 s^-1 at the centre of the
@@ -172,7 +172,7 @@ def arrhenius_study(tmp_path_factory):
     from kinfit.inputs.mechanism import load_mechanism
 
     folder = tmp_path_factory.mktemp("arrhenius")
-    truth, reference = _arrhenius_study(folder)
+    truth, reference = make_arrhenius_study(folder)
     exp = load_experiment(folder / "experiment.toml")
     mech = load_mechanism(folder / "model.toml")
     result = fit(exp, mech, starts=1)

@@ -149,7 +149,7 @@ def temperature_bundle(activations, two_stage=None, basis=None):
     ``activation`` (one entry per rate constant, see
     :meth:`Activation.to_dict`), ``two_stage`` (see :meth:`TwoStage.to_dict`,
     or null), ``order_warnings``, ``prediction_basis`` (see
-    :func:`kinfit.analysis.prediction.basis_to_dict`; read by ``kinfit
+    :func:`kinfit.inputs.fit_basis.basis_to_dict`; read by ``kinfit
     simulate --fit``) and ``cautions``.
 
     Returns

@@ -26,7 +26,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from conftest import _arrhenius_study  # noqa: E402  (the same generator as the tests)
+from conftest import make_arrhenius_study  # noqa: E402  (the same generator as the tests)
 
 
 def replicate(seed, folder):
@@ -36,7 +36,7 @@ def replicate(seed, folder):
     from kinfit.inputs.experiment import load_experiment
     from kinfit.inputs.mechanism import load_mechanism
 
-    truth, _ = _arrhenius_study(folder, seed=seed)
+    truth, _ = make_arrhenius_study(folder, seed=seed)
     exp = load_experiment(folder / "experiment.toml")
     mech = load_mechanism(folder / "model.toml")
     t0 = time.perf_counter()

@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pytest
 import statsmodels.api as sm
-from conftest import write
+from cases import zero_order_case
 from scipy.stats import norm
 
 from kinfit.estimation.least_squares import fit
@@ -15,30 +15,6 @@ from kinfit.estimation.likelihood import log_likelihood
 from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import load_mechanism, mechanism_from_text
 from kinfit.numerics.problem import build_problem, residuals
-
-
-def zero_order_case(folder, noise=""):
-    """A -> P at zero order with [A]0 fitted: [A] = A0 - k t is a straight line.
-
-    Seeded synthetic data; the reference answers come from statsmodels OLS.
-    """
-    rng = np.random.default_rng(7)
-    t = np.arange(0.0, 11.0)
-    y = 1.0 - 0.05 * t + rng.normal(0.0, 0.01, t.size)
-    rows = "\n".join(f"r1,{ti:g},A,{yi:.6f}" for ti, yi in zip(t, y))
-    write(folder, "traces.csv", "run,time,species,value\n" + rows + "\n")
-    write(folder, "e.toml", f"""
-        [data]
-        file = "traces.csv"
-        [[runs]]
-        name = "r1"
-        initial = {{ A = {{ value = 0.9, vary = true, min = 0 }} }}
-        {noise}
-    """)
-    mech = mechanism_from_text('[[steps]]\nreaction = "A -> P"\nrate = "k"\n'
-                               '[parameters]\nk = { value = 0.01, min = 0 }\n')
-    y = np.round(y, 6)
-    return load_experiment(folder / "e.toml"), mech, t, y
 
 
 def test_fit_equals_ordinary_least_squares(tmp_path):

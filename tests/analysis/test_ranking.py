@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pytest
 import statsmodels.api as sm
-import test_objective
+from cases import zero_order_case
 from conftest import synthetic_power_law
 from statsmodels.tools.eval_measures import aicc as sm_aicc
 
@@ -26,7 +26,7 @@ def linear_pair(tmp_path_factory):
     full: [A] ~ 1 + t; restricted (k fixed at 0.05): [A] + 0.05 t ~ 1.
     """
     folder = tmp_path_factory.mktemp("linear")
-    exp, mech, t, y = test_objective.zero_order_case(folder)
+    exp, mech, t, y = zero_order_case(folder)
     fixed = with_fixed(mech, {"k": 0.05}, name="k fixed")
     fits = [fit(exp, mech, starts=1), fit(exp, fixed, starts=1)]
     full = sm.OLS(y, sm.add_constant(t)).fit()

@@ -1,0 +1,41 @@
+"""Prediction summaries and files."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from conftest import MODELS
+
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism
+
+
+@pytest.fixture(scope="module")
+def result(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("r")
+    (folder / "e.toml").write_text('[[runs]]\nname = "a"\nfile = "a.csv"\ninitial = { A = 1 }\n')
+    (folder / "a.csv").write_text("time,A\n0,1\n5,0.61\n10,0.37\n20,0.14\n")
+    return fit(load_experiment(folder / "e.toml"), load_mechanism(MODELS / "first_order.toml"),
+               starts=1)
+
+
+def test_write_prediction(tmp_path, arrhenius_study):
+    import numpy as np
+
+    from kinfit.analysis.prediction import basis_from_fit, predict
+    from kinfit.output.bundle import write_bundle
+    from kinfit.output.prediction import format_prediction, prediction_bundle
+
+    basis = basis_from_fit(arrhenius_study["result"])
+    pred = predict(basis, {"A": 0.8}, np.linspace(0, 100, 11), 333.15, draws=20)
+    text = format_prediction(pred, "decay")
+    assert text.startswith("EXTRAPOLATED") and "calorimetry" in text
+    written = write_bundle(tmp_path / "p", prediction_bundle(pred, "decay"))
+    assert [p.name for p in written] == ["simulation.csv", "simulation.png", "simulation.svg",
+                                         "prediction.json"]
+    header = (tmp_path / "p" / "simulation.csv").read_text().splitlines()[0]
+    assert header == "time,A,P,A_lower,A_upper,P_lower,P_upper"
+    data = json.loads((tmp_path / "p" / "prediction.json").read_text())
+    assert data["extrapolated"] is True and "calorimetry" in data["cautions"]

@@ -1,0 +1,58 @@
+"""Ranking summaries and files."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from conftest import MODELS
+
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism
+
+
+@pytest.fixture(scope="module")
+def result(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("r")
+    (folder / "e.toml").write_text('[[runs]]\nname = "a"\nfile = "a.csv"\ninitial = { A = 1 }\n')
+    (folder / "a.csv").write_text("time,A\n0,1\n5,0.61\n10,0.37\n20,0.14\n")
+    return fit(load_experiment(folder / "e.toml"), load_mechanism(MODELS / "first_order.toml"),
+               starts=1)
+
+
+def test_format_ranking(small_ranking):
+    from kinfit.output.ranking import format_ranking
+
+    comparison, _, _ = small_ranking
+    text = format_ranking(comparison, top=3)
+    lines = text.splitlines()
+    assert lines[0].startswith("Ranking of 5 candidates fitted to")
+    assert "sorted by AICc" in lines[0]
+    header = next(line for line in lines if "ΔAICc" in line)
+    assert header.split()[:4] == ["#", "candidate", "p", "χ²"]
+    assert "  1  m=1, n=2" in text and "... 2 more in ranking.json" in text
+    assert "Verdict" in text and "Nested pairs" in text
+    assert "Initial-rates cross-check" in text and "Burnham & Anderson" in text
+    assert "Kass & Raftery" in text and "process-safety review" in text
+
+
+def test_write_ranking(small_ranking, tmp_path):
+    from kinfit.output.ranking import write_ranking
+
+    comparison, _, _ = small_ranking
+    written = write_ranking(tmp_path / "out", comparison)
+    names = {p.name for p in written}
+    assert {"ranking.json", "ranking.txt", "weights.png", "weights.svg", "initial_rates.png",
+            "initial_rates.csv", "result.json"} <= names
+    data = json.loads((tmp_path / "out" / "ranking.json").read_text())
+    assert data["candidates"][0]["name"] == comparison.best.name
+    assert (tmp_path / "out" / "best" / "fit.png").exists()
+    csv = (tmp_path / "out" / "initial_rates.csv").read_text().splitlines()
+    assert csv[0] == "run,A0,B0,rate,stderr,note" and len(csv) == 4
+    import pandas as pd  # notes with commas stay one field each
+
+    table = pd.read_csv(tmp_path / "out" / "initial_rates.csv", keep_default_na=False)
+    assert list(table["note"]) == [r.note for r in comparison.cross_check.initial_rates.rates]
+    assert json.loads((tmp_path / "out" / "best" / "result.json").read_text())["schema"] \
+        == "kinfit.result/1"

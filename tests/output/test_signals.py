@@ -1,0 +1,42 @@
+"""Spectrometer-signal summaries and files."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from conftest import MODELS
+
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism
+
+
+@pytest.fixture(scope="module")
+def result(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("r")
+    (folder / "e.toml").write_text('[[runs]]\nname = "a"\nfile = "a.csv"\ninitial = { A = 1 }\n')
+    (folder / "a.csv").write_text("time,A\n0,1\n5,0.61\n10,0.37\n20,0.14\n")
+    return fit(load_experiment(folder / "e.toml"), load_mechanism(MODELS / "first_order.toml"),
+               starts=1)
+
+
+def test_signal_summary_and_files():
+    from conftest import DEMO
+
+    from kinfit.output.signals import format_components, format_signals, signals_bundle
+
+    folder = DEMO / "spectra"
+    mech = load_mechanism(folder / "dye_formation.toml")
+    result = fit(load_experiment(folder / "spectra.toml"), mech, starts=1)
+    text = format_signals(result, [400.0])
+    assert "spectra of precursor, intermediate, dye resolved at 71 wavelengths" in text
+    assert "significant components: 3" in text and "the fit used the leading 3" in text
+    first = format_components(result.signals.components).splitlines()[0]
+    assert "  " + first in text
+    files = signals_bundle(result)
+    assert set(files) >= {"spectra.csv", "spectra.png", "spectra.svg", "components.png",
+                          "residual_map.png", "residual_map_r1.csv", "wavelength_traces.png"}
+    rows = files["spectra.csv"].splitlines()
+    assert len(rows) == 72
+    assert json.loads(json.dumps(result.to_dict()))["signals"]["reduced"] is True

@@ -1,0 +1,50 @@
+"""Temperature summaries and files."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from conftest import MODELS
+
+from kinfit.estimation.least_squares import fit
+from kinfit.inputs.experiment import load_experiment
+from kinfit.inputs.mechanism import load_mechanism
+from kinfit.output.fit import write_fit
+
+
+@pytest.fixture(scope="module")
+def result(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("r")
+    (folder / "e.toml").write_text('[[runs]]\nname = "a"\nfile = "a.csv"\ninitial = { A = 1 }\n')
+    (folder / "a.csv").write_text("time,A\n0,1\n5,0.61\n10,0.37\n20,0.14\n")
+    return fit(load_experiment(folder / "e.toml"), load_mechanism(MODELS / "first_order.toml"),
+               starts=1)
+
+
+def test_temperature_summary_and_files(tmp_path, arrhenius_study):
+    from kinfit.analysis.activation import activation_parameters
+    from kinfit.analysis.prediction import basis_from_fit
+    from kinfit.output.temperature import format_activation, temperature_bundle
+
+    result = arrhenius_study["result"]
+    acts = activation_parameters(result)
+    text = format_activation(acts, arrhenius_study["two_stage"])
+    for needed in ("Ea (fitted)", "ΔH‡", "ΔS‡", "ΔG‡(298.15 K)", "T_ref = 302.41 K (29.3 °C), where k = k_ref",
+                   "Two-stage analysis", "global fit 95 %", "Extrapolation beyond the measured "
+                   "range is unsafe", "calorimetry", "process-safety review", "local codes",
+                   "licensed professional practice", "thermal runaway"):
+        assert needed in " ".join(text.split()), needed
+    files = temperature_bundle(acts, arrhenius_study["two_stage"], basis_from_fit(result))
+    assert list(files) == ["temperature.json", "arrhenius.png", "arrhenius.svg", "eyring.png",
+                           "eyring.svg"]
+    data = json.loads(files["temperature.json"])
+    assert list(data) == ["schema", "activation", "two_stage", "order_warnings",
+                          "prediction_basis", "cautions"]
+    assert data["schema"] == "kinfit.temperature/1"
+    ea = data["activation"][0]["estimates"]["Ea"]
+    assert ea["unit"] == "kJ/mol" and ea["stderr"] > 0 and ea["fitted"] is True
+    assert "calorimetry" in data["cautions"]
+    written = write_fit(tmp_path / "out", result, extra_files=files, extra_summary=text)
+    assert {"temperature.json", "arrhenius.png", "eyring.svg"} <= {p.name for p in written}
+    assert "Caution (temperature)" in (tmp_path / "out" / "summary.txt").read_text()
