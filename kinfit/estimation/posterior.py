@@ -352,7 +352,12 @@ def compare_intervals(post):
 
 
 def _bands(space: ParameterSpace, samples_u, rng, n_draws=_BAND_DRAWS, n_grid=200):
-    """Posterior curve and predictive bands of every run."""
+    """Posterior curve and predictive bands of every run's measured concentrations.
+
+    Traces of spectrometer signal channels are not concentrations and get no
+    band here (their fitted signals are in the fit's outputs); a run with
+    signal channels only has no bands.
+    """
     problem = space.problem
     exp = problem.experiment
     pick = rng.choice(samples_u.shape[0], size=min(n_draws, samples_u.shape[0]), replace=False)
@@ -365,7 +370,9 @@ def _bands(space: ParameterSpace, samples_u, rng, n_draws=_BAND_DRAWS, n_grid=20
     out = []
     species_index = {s: i for i, s in enumerate(problem.mechanism.species)}
     for r, run in enumerate(exp.runs):
-        measured = tuple(dict.fromkeys(run.species))
+        measured = tuple(s for s in dict.fromkeys(run.species) if s in species_index)
+        if not measured:
+            continue
         curves = conc[r][ok][:, :, [species_index[s] for s in measured]]   # [n, t, s]
         noisy = curves.copy()
         for j, s in enumerate(measured):
@@ -520,6 +527,9 @@ def _analyse(space, fit_result, target, state, stopped, settings, rng, profile, 
     if target.failed:
         warnings.append(f"{target.failed} of {target.evaluations} parameter sets could not be "
                         f"integrated and were rejected")
+    if bands and fit_result.signals is not None:
+        warnings.append("posterior bands are drawn for measured concentrations only; the "
+                        "spectrometer signal channels have none")
     post = Posterior(
         fit=fit_result, names=space.names, labels=space.labels,
         roles=dict(zip(space.names, space.roles)), units=units,

@@ -333,7 +333,7 @@ class ScaledProblem:
         values = self.scale.to_values(u)
         pred, ok, _, info = self.problem.evaluate(values, max_rhs=max_rhs, fallback=fallback)
         self._count(values.shape[0], ok, info)
-        return self.problem._weigh(pred, ok)
+        return self.problem.weigh(pred, ok)
 
     def residuals_jacobian(self, u):
         """(residuals [n_points], ∂r/∂u [n_points, n_model]) at one point, cached."""

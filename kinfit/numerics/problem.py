@@ -345,9 +345,12 @@ class Problem:
             :data:`FAILED_RESIDUAL`.
         """
         pred, ok = self.predict(values, max_rhs=max_rhs)
-        return self._weigh(pred, ok)
+        return self.weigh(pred, ok)
 
-    def _weigh(self, pred, ok):
+    def weigh(self, pred, ok):
+        """Residuals f - y of predictions [n_sets, n_points], divided by σ where the
+        noise is declared; sets that failed to integrate (``ok`` false) get
+        ``FAILED_RESIDUAL`` everywhere."""
         res = pred - self.observation.values
         if self.observation.sigma is not None:
             res = res / self.observation.sigma
@@ -367,14 +370,14 @@ class Problem:
         info : FlatSolution
         """
         pred, ok, dpred, info = self.evaluate(values, jacobian=True)
-        res = self._weigh(pred, ok)[0]
+        res = self.weigh(pred, ok)[0]
         jac = dpred[0]
         if self.observation.sigma is not None:
             jac = jac / self.observation.sigma[:, None]
         if ok[0] and not (np.isfinite(jac).all() and np.abs(jac).max(initial=0.0) < 1e150):
             # sensitivities that overflow mean the equations blow up here: a failed point
             ok = np.array([False])
-            res = self._weigh(pred, ok)[0]
+            res = self.weigh(pred, ok)[0]
         if not ok[0]:
             jac = np.zeros_like(jac)
         return res, jac, bool(ok[0]), info

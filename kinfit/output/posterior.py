@@ -118,9 +118,9 @@ def posterior_bundle(post):
     """The files of a posterior's output folder, computed but not written.
 
     Files, in order: ``chain.npz`` (the whole chain, see
-    :func:`~kinfit.estimation.posterior.load_chain`), ``corner.png``/``.svg``,
-    ``bands.png``/``.svg`` (each run's data with posterior bands),
-    ``profiles.png``/``.svg``, ``posterior_summary.txt`` and
+    :func:`~kinfit.estimation.chains.load_chain`), ``corner.png``/``.svg``,
+    ``bands.png``/``.svg`` (each run's data with posterior bands; left out when
+    no run has a band, as for spectrometer signals only), ``profiles.png``/``.svg``, ``posterior_summary.txt`` and
     ``posterior.json`` (schema ``kinfit.posterior/1``: :meth:`Posterior.to_dict`).
 
     Returns
@@ -130,9 +130,12 @@ def posterior_bundle(post):
     from kinfit.estimation.chains import CHAIN_FILE
     from kinfit.figures.posterior import plot_bands, plot_corner, plot_profiles
 
+    figures = {"corner": plot_corner(post)}
+    if post.bands:
+        figures["bands"] = plot_bands(post)
+    figures["profiles"] = plot_profiles(post)
     return (Bundle({CHAIN_FILE: chain_bytes(post)})
-            | figure_files({"corner": plot_corner(post), "bands": plot_bands(post),
-                            "profiles": plot_profiles(post)})
+            | figure_files(figures)
             | {"posterior_summary.txt": format_posterior(post) + "\n",
                "posterior.json": schema_json("posterior", post.to_dict())})
 

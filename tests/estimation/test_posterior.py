@@ -221,3 +221,18 @@ def test_sampled_and_profiled_problems_are_the_fitted_one(tmp_path, monkeypatch)
         assert problem.observation.n_points == result.n_points
         np.testing.assert_allclose(problem.residuals(result.values)[0], result.residuals,
                                    rtol=1e-6, atol=1e-6 * np.abs(result.residuals).max())
+
+
+def test_signal_channels_get_no_concentration_bands(tmp_path):
+    # a run measured only as absorbance has no concentration to draw a band of: the
+    # posterior says so instead of failing, and its folder has no bands figure
+    from signal_cases import ab_signal_case
+
+    from kinfit.output.posterior import posterior_bundle
+
+    exp, mech = ab_signal_case(tmp_path)
+    post = sample(exp, mech, walkers=8, steps=60, seed=1, starts=1, profile=False)
+    assert post.bands == ()
+    assert any("spectrometer signal channels have none" in w for w in post.warnings)
+    files = posterior_bundle(post)
+    assert "bands.png" not in files and "corner.png" in files
