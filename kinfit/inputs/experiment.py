@@ -240,11 +240,24 @@ def load_experiment(path):
             isinstance(r, dict) for r in raw_runs):
         raise KinfitError(f"{source}: no runs; list each run as\n  [[runs]]\n  name = \"r1\"\n"
                           f"  initial = {{ A = 0.1 }}")
-    default_temperature = table.get("temperature")
     signals = parse_signals(table["signals"], text, source) if "signals" in table else None
-    specs = [_parse_run(i, raw, text, source, units, default_temperature)
+    specs = [_parse_run(i, raw, text, source, units, table.get("temperature"))
              for i, raw in enumerate(raw_runs)]
-    names = [s["name"] for s in specs]
+    _check_run_names([s["name"] for s in specs], text, source)
+    traces, spectra, files = _read_data(table, text, source, path.parent, specs, units,
+                                        signals)
+    runs = [_assemble_run(spec, traces.get(spec["name"], []), spectra.get(spec["name"]),
+                          files) for spec in specs]
+
+    experiment = Experiment(name=name, runs=tuple(runs), units=units, source=source,
+                            description=str(table.get("description", "")),
+                            data_files=tuple(files), signals=signals)
+    noise = _parse_noise(table.get("noise"), text, source, experiment)
+    return Experiment(**{**experiment.__dict__, "noise": noise})
+
+
+def _check_run_names(names, text, source):
+    """Run names are unique, also after dropping punctuation (per-run parameter names)."""
     for i, n in enumerate(names):
         if names.index(n) != i:
             raise KinfitError(f"{where(source, find_line(text, 'name', 'runs', i))}: run name "
@@ -257,61 +270,59 @@ def load_experiment(path):
                               f"punctuation; kinfit names per-run parameters after runs, so "
                               f"make them differ in letters or digits")
 
-    traces, files = {}, []
+
+def _read_data(table, text, source, folder, specs, units, signals):
+    """Every run's traces and spectra from the long [data] file and the runs' own files.
+
+    Returns (traces by run, spectra by run, data files read in order).
+    """
+    traces, spectra, files = {}, {}, []
+    names = {s["name"] for s in specs}
     data = table.get("data")
     if data is not None:
         if not isinstance(data, dict) or set(data) - {"file"} or "file" not in data:
             raise KinfitError(f"{where(source, find_line(text, None, 'data'))}: expected "
                               f"[data] with file = \"traces.csv\" (columns run,time,species,"
                               f"value)")
-        data_path = resolve_file(data["file"], "data file", path.parent,
+        data_path = resolve_file(data["file"], "data file", folder,
                                  where(source, find_line(text, "file", "data"), "data.file"))
         files.append(str(data_path))
-        traces.update(read_long(data_path, data["file"], set(names),
-                                 {s["name"] for s in specs if s["file"]},
-                                 {s["name"]: s["start"] for s in specs}))
-    spectra = {}
+        traces.update(read_long(data_path, data["file"], names,
+                                {s["name"] for s in specs if s["file"]},
+                                {s["name"]: s["start"] for s in specs}))
     channels = set(signals.channels) if signals is not None else set()
     for spec in specs:
         if spec["file"]:
-            run_path = resolve_file(spec["file"], "data file", path.parent, spec["where"])
+            run_path = resolve_file(spec["file"], "data file", folder, spec["where"])
             files.append(str(run_path))
             traces[spec["name"]] = read_wide(run_path, spec["file"], units, channels,
-                                              spec["name"], spec["start"])
+                                             spec["name"], spec["start"])
         if spec["spectrum"]:
             if signals is None or signals.spectra is None:
                 raise KinfitError(f"{spec['where']}: run {spec['name']!r} gives a spectrum "
                                   f"but the experiment has no [signals.spectra] table saying "
                                   f"which species absorb")
-            spec_path = resolve_file(spec["spectrum"], "spectrum file", path.parent,
-                                     spec["where"])
+            spec_path = resolve_file(spec["spectrum"], "spectrum file", folder, spec["where"])
             files.append(str(spec_path))
             spectra[spec["name"]] = read_spectrum(spec_path, spec["spectrum"], units.time,
                                                   spec["name"], spec["start"])
-    runs = []
-    for spec in specs:
-        run_traces = traces.get(spec["name"], [])
-        spectrum = spectra.get(spec["name"])
-        if not run_traces and spectrum is None:
-            raise KinfitError(f"{spec['where']}: run {spec['name']!r} has no data; give it "
-                              f"file = \"...\" (wide layout) or add its rows to the [data] file")
-        n_points = sum(len(t.times) for t in run_traces) + (
-            spectrum.n_points if spectrum is not None else 0)
-        if n_points < MIN_POINTS:
-            raise KinfitError(f"{spec['where']}: run {spec['name']!r} has {n_points} data "
-                              f"point(s); at least {MIN_POINTS} are needed")
-        runs.append(Run(name=spec["name"], traces=tuple(run_traces), initial=spec["initial"],
-                        fitted_initial=spec["fitted"], temperature=spec["temperature"],
-                        time_offset=spec["offset"], source=spec["source"] or (
-                            files[0] if files else ""),
-                        path_length=spec["path_length"], start=spec["start"],
-                        spectrum=spectrum))
+    return traces, spectra, files
 
-    experiment = Experiment(name=name, runs=tuple(runs), units=units, source=source,
-                            description=str(table.get("description", "")),
-                            data_files=tuple(files), signals=signals)
-    noise = _parse_noise(table.get("noise"), text, source, experiment)
-    return Experiment(**{**experiment.__dict__, "noise": noise})
+
+def _assemble_run(spec, run_traces, spectrum, files):
+    """A :class:`Run` from its parsed table and data, refused with too few points."""
+    if not run_traces and spectrum is None:
+        raise KinfitError(f"{spec['where']}: run {spec['name']!r} has no data; give it "
+                          f"file = \"...\" (wide layout) or add its rows to the [data] file")
+    n_points = sum(len(t.times) for t in run_traces) + (
+        spectrum.n_points if spectrum is not None else 0)
+    if n_points < MIN_POINTS:
+        raise KinfitError(f"{spec['where']}: run {spec['name']!r} has {n_points} data "
+                          f"point(s); at least {MIN_POINTS} are needed")
+    return Run(name=spec["name"], traces=tuple(run_traces), initial=spec["initial"],
+               fitted_initial=spec["fitted"], temperature=spec["temperature"],
+               time_offset=spec["offset"], source=spec["source"] or (files[0] if files else ""),
+               path_length=spec["path_length"], start=spec["start"], spectrum=spectrum)
 
 
 def _parse_run(index, raw, text, source, units, default_temperature):
