@@ -10,7 +10,7 @@ from hypothesis import HealthCheck, settings
 
 # Property-based fuzzing: a quick profile for every test run, a long one
 # (10,000 examples per target) on request:
-#     python -m pytest tests/test_fuzz.py --hypothesis-profile=long
+#     python -m pytest tests/system/test_fuzz.py --hypothesis-profile=long
 settings.register_profile("default", max_examples=100, deadline=None,
                           suppress_health_check=[HealthCheck.too_slow,
                                                  HealthCheck.function_scoped_fixture])

@@ -17,10 +17,16 @@ error A·se(ln A) and an interval exp(ln A ± q se). The law that was not
 fitted is reached through the textbook relations at T_ref
 (Ea = ΔH‡ + RT, ln A = ln k + Ea/(RT)).
 
+ΔS‡ and ΔG‡ need k in (mol/L)^(1-n) s^-1: :func:`si_factor` converts the
+experiment's units with pint (:mod:`kinfit.core.units`), and molal or mass
+concentrations give no ΔS‡ or ΔG‡. κ changes only ΔS‡.
+
 Other intervals come from elsewhere and are attached by hooks:
 :func:`with_posterior` takes samples of the fitted parameters (a posterior,
-or any other draws) and :func:`with_profile` takes profile-likelihood
-intervals of the fitted parameters.
+or any other draws) and maps them through the same linear forms;
+:func:`with_profile` takes profile-likelihood intervals of the fitted
+parameters and carries the energy's through to Ea and ΔH‡ (A, ΔS‡ and ΔG‡
+combine k_ref and E and would need a profile of their own).
 
 The two-stage analysis beside the global fit is in :mod:`kinfit.analysis.two_stage`.
 """

@@ -15,7 +15,10 @@ planning tools built on it) carries:
   scale-up or thermal safety (see ``CAUTIONS`` in :mod:`kinfit.core.formatting`).
 
 All draws are integrated in one call to :meth:`Problem.simulate`, through a
-one-run problem at the prediction's conditions.
+one-run problem at the prediction's conditions (with the fit's T_ref, so
+that k_ref and the energies mean what they meant in the fit). The flags come
+from the basis's :class:`~kinfit.inputs.fit_basis.FittedRange` (run
+temperatures and each species' starting concentrations).
 
 :func:`basis_from_fit` gathers what a prediction needs from a fit, a
 :class:`~kinfit.inputs.fit_basis.PredictionBasis`; its file form, written with a

@@ -12,6 +12,12 @@ criterion differences, weights and evidence words
 (:mod:`kinfit.analysis.nesting`), model averages, warnings, a plain-language
 verdict and, from :func:`rank`, the initial-rates cross-check
 (:mod:`kinfit.analysis.cross_check`).
+
+Rows are sorted by the chosen criterion (AICc by default), ties by fewer
+parameters. When the runner-up is within ΔAICc 2 of the best the verdict
+says the two are not distinguishable with these data and names the measured
+point where their predictions differ most, in noise standard deviations
+(``Comparison.separation``): a run there would separate them.
 """
 
 from __future__ import annotations

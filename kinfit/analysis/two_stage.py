@@ -13,9 +13,19 @@ The lines' uncertainties come from the per-temperature standard errors,
 enlarged by χ²/(n - 2) when the points scatter more than those errors allow
 (then with Student's t and n - 2 degrees of freedom, n temperatures); they
 are never shrunk below what the per-temperature errors give, which four
-points could otherwise easily do by chance. With free orders at each temperature the method
+points could otherwise easily do by chance (:meth:`LineFit.uncertainty`).
+:class:`LineFit` also keeps the scatter-scaled covariance, which is what
+scipy's ``linregress`` and statsmodels' WLS report (tested against both).
+With free orders at each temperature the method
 ignores that the runs share their orders, so its intervals are usually wider
 than the global fit's.
+
+Why the global fit shares its orders: if an order changed with temperature,
+k would carry different units at different temperatures and its temperature
+dependence would not be one Arrhenius quantity. ``orders="free"`` fits the
+orders at each temperature as a check, and :func:`order_differences`
+reports any that differ from the shared ones by more than 3 combined
+standard errors.
 """
 
 from __future__ import annotations

@@ -13,6 +13,9 @@ Burn-in is discarded from τ: by default 3 τ (emcee's documentation suggests
 own rule and the R-hat rule of Vehtari et al.: a chain is called converged
 when the kept part is at least 50 τ long for every parameter and every
 R-hat ≤ 1.01; otherwise the diagnostics say why and how many steps to run.
+R-hat − 1 falls roughly as 1/(length of the kept chain), so with ensemble
+walkers R-hat ≤ 1.01 usually needs about 100 τ, more than the 50 τ rule; the
+suggested number of steps accounts for both.
 """
 
 from __future__ import annotations

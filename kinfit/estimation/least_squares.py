@@ -11,7 +11,10 @@ How the fit is set up
   are reported on the natural scale (delta method).
 * Several starting points: the model file's values, plus the best of a
   Latin-hypercube screen of the start box (all screened sets are evaluated in
-  one vectorised integration). Each start is refined by a bounded
+  one vectorised integration, in chunks that keep a chunk's model values
+  under about 50 MB, with a small work bound and no hand-over to the stiff
+  integrators, so that a candidate that is hard to integrate is dropped
+  cheaply). Each start is refined by a bounded
   Levenberg–Marquardt loop (:mod:`kinfit.estimation.levenberg_marquardt`);
   the best is kept and the number of starts that reached it is reported.
 * The Jacobian is exact: forward sensitivity equations are integrated with
@@ -19,9 +22,16 @@ How the fit is set up
   residuals and Jacobian together. lmfit is used at the edges — the result converts to
   :class:`lmfit.Parameters` — not inside the loop, where its parameter
   objects would cost more than the integration.
-* Standard errors come from (JᵀJ)⁻¹, scaled by the reduced χ² when the noise
-  is estimated from the fit and unscaled when it is declared. The
-  log-likelihood and AIC, AICc and BIC follow :mod:`kinfit.estimation.likelihood`.
+* Standard errors come from (JᵀJ)⁻¹ on the fitting scale, scaled by the
+  reduced χ² when the noise is estimated from the fit and unscaled when it is
+  declared, then mapped to the natural scale by the delta method. A parameter
+  that does not change the model, or a near-singular JᵀJ (condition number of
+  the column-scaled matrix above 1e14), gives no covariance and a warning
+  naming the problem. With spectrometer signals the covariance uses Kaufman's
+  projected Jacobian, whose JᵀJ is the Schur complement of the full normal
+  matrix, so the kinetic standard errors are those of a fit of every
+  parameter (:mod:`kinfit.numerics.signal_model`). The log-likelihood and
+  AIC, AICc and BIC follow :mod:`kinfit.estimation.likelihood`.
 """
 
 from __future__ import annotations

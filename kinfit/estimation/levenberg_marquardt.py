@@ -18,9 +18,17 @@ their exact Jacobian from one integration.
   a poor start cannot leap onto a plateau where the data no longer constrain
   anything.
 
-When it has not converged within its budget, scipy's trust-region
+It stops when a further Gauss–Newton step would lower χ² by less than
+1e-10 σ̂² (σ̂² = χ²/(N − p) when the noise is estimated, 1 when declared),
+that is, would move the parameters by less than about 1e-5 of their standard
+errors. When it has not converged within its budget, scipy's trust-region
 reflective least squares (:func:`trust_region_fit`) continues from its best
 point.
+
+Why a loop of its own: with exact Jacobians the problems are small and well
+scaled, and a few lines of numpy per iteration cost far less than a
+general-purpose solver's bookkeeping, which rivalled the integrations
+themselves.
 """
 
 from __future__ import annotations
@@ -40,14 +48,9 @@ _STEP_CAP_REL = 1.0   # largest move elsewhere, relative to the value (or its ty
 def local_fit(evaluator, u0, max_evaluations):
     """Refine one start by Levenberg–Marquardt with the exact Jacobian.
 
-    A compact bounded Levenberg–Marquardt loop on plain arrays (Marquardt's
-    diagonal scaling, Nielsen's damping update, steps projected onto the
-    bounds with variables held at an active bound): with exact Jacobians the
-    problems are small and well scaled, and a loop in a few lines of numpy
-    costs far less per iteration than a general-purpose solver. It stops when
-    a further Gauss–Newton step would lower χ² by less than 1e-10 σ̂², that is
-    move the parameters by less than about 1e-5 of their standard errors. lmfit
-    stays at the edges (see :meth:`FitResult.lmfit_parameters`).
+    The method, its stopping rule and why it is a loop of its own are in the
+    module notes. lmfit stays at the edges (see
+    :meth:`FitResult.lmfit_parameters`).
 
     Parameters
     ----------
@@ -105,7 +108,7 @@ def local_fit(evaluator, u0, max_evaluations):
             step_f = np.linalg.lstsq(nf + damping * np.diag(diag), -gf, rcond=None)[0]
         step = np.zeros(n)
         step[free] = step_f
-        # keep each move modest (a decade in a rate constant, about the size of
+        # keep each move modest (two decades of a rate constant, about the size of
         # the value elsewhere), so that a first step from a poor start cannot
         # leap onto a plateau where the data no longer constrain anything
         cap = np.where(scale.logarithmic, _STEP_CAP_LOG,

@@ -28,7 +28,7 @@ Its maximum over a single shared σ is the concentrated likelihood above.
 
 All three include every constant, so they are true log densities: the first
 two are statsmodels' OLS ``llf`` for a model linear in its parameters
-(``tests/test_objective.py`` checks it), the first and third are sums of
+(``tests/numerics/test_problem.py`` checks it), the first and third are sums of
 ``scipy.stats.norm.logpdf``.
 
 Deviance of the profile likelihood

@@ -19,6 +19,15 @@ and Cov(θ, β) = −Cov(θ) Kᵀ, so the correlation of linear and non-linear
 parameters is honoured without forming the full matrix (one block per
 channel). J_θ is Kaufman's projected Jacobian, whose JᵀJ is the Schur
 complement of the full normal matrix (see :mod:`kinfit.numerics.signal_model`).
+
+Warnings
+--------
+Columns of a design that the data cannot separate (e.g. per-run offsets and
+absorptivities when every species of a closed system absorbs: the
+concentrations then sum to a constant) are named, and so is a kinetic
+parameter whose effect the projection removes, ‖P⊥ J_p‖ < 1e-6 ‖J_p‖ (the
+dead time of a first-order decay, or a fitted starting concentration, when
+the absorptivity is unknown).
 """
 
 from __future__ import annotations

@@ -19,6 +19,32 @@ in :data:`METHODS`, as in :func:`scipy.integrate.solve_ivp`:
 Without numba the compiled methods are not there and ``"auto"`` and
 ``"compiled"`` use LSODA. :func:`describe_method` says in words which
 integrators did the work, for reports.
+
+Tolerances and failures
+-----------------------
+rtol 1e-8 and atol 1e-12 times each system's largest starting concentration
+(:mod:`kinfit.numerics.integrators`): an integration error far below any
+measurement noise. A work bound (``max_rhs`` right-hand-side evaluations)
+marks a system failed instead of integrating forever; a concentration beyond
+``BLOWUP_FACTOR`` (1e6) times the largest start ends that system at once --
+the equations diverge for those parameters, and no other method is tried.
+Every system has its own status, so one failed system never spoils the
+others; the residual problem gives a failed parameter set a large constant
+residual so that an optimiser backs away.
+
+Why compiled integrators
+------------------------
+A per-run Python loop around :func:`scipy.integrate.solve_ivp` costs
+milliseconds per evaluation, while the compiled kernel costs microseconds
+per run (``tests/benchmarks/bench_speed.py`` measures it); exact forward
+sensitivities remove the finite-difference integrations from every
+Jacobian; and the compiled Rosenbrock method keeps rough starting points and
+stiff mechanisms (fast pre-equilibria, a reactant of fractional order running
+out) off the slow path. The price is compilation on first use, once per
+machine (numba caches the kernels on disk beside their modules). The
+right-hand side is inlined into the step loops, which roughly halved the run
+time when it was measured, at the cost of compile time; run time was chosen
+because the cache makes compilation a one-off.
 """
 
 from __future__ import annotations

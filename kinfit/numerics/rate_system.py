@@ -23,7 +23,7 @@ starting concentration a power with order between 0 and 1 is linearised
 smoothly enough to integrate.
 
 The compiled integrators (:mod:`kinfit.numerics.integrators`) evaluate the
-same piecewise law in numba loops; ``tests/test_rate_system.py`` checks that
+same piecewise law in numba loops; ``tests/numerics/test_rate_system.py`` checks that
 the two agree. The scipy integrators and the residual problem use the numpy
 functions here.
 """

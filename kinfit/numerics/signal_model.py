@@ -27,6 +27,15 @@ where f₀ holds the contributions of known absorptivities. Optionally the
 absorptivities are constrained non-negative (bounded-variable least squares,
 offsets and drifts free).
 
+Measured signals are grouped into blocks that share rows and linear
+unknowns: each single-wavelength channel is a block of one channel, and all
+full spectra form one block whose channels are the wavelengths. A block's
+design is X = coef × feature (``feature`` the absorber's concentration, or 1
+for offsets and drifts; ``coef`` the path length, run mask and time), so one
+SVD of the column-scaled weighted design per parameter set serves every
+channel of the block. The linear algebra runs on one BLAS thread
+(:func:`kinfit.numerics.threads.one_blas_thread`).
+
 Jacobian
 --------
 The derivative of the projected residual is built from the concentration

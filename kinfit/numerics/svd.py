@@ -8,8 +8,10 @@ as the number of significant components, a check on how many absorbing
 species the mechanism needs. With ``components`` other than "all", a fit uses
 Y V_k (the data projected on the leading k right singular vectors) in place
 of Y (:mod:`kinfit.numerics.signal_build`): the same least-squares problem
-restricted to spectra in the span of V_k, k channels instead of hundreds. The
-spectra are then resolved at the fitted θ from the full data, and the share
+restricted to spectra in the span of V_k, k channels instead of hundreds.
+The reduced fit carries no non-negativity (a constraint on B V_k is not one
+on the spectra B). The spectra are then resolved at the fitted θ from the
+full data (with non-negativity where it was asked for), and the share
 of the data's sum of squares that the reduction left out
 (:attr:`Components.left_out`) is reported beside what noise alone would leave
 (:attr:`Components.noise_share`).

@@ -12,10 +12,27 @@ This module owns the numbers: :func:`rate_constant`, the default T_ref
 experiment's runs (:func:`join_temperatures`, :class:`TemperatureLayout`,
 used by the residual problem), and the activation parameters as linear forms.
 
+In the residual problem
+-----------------------
+The rate constant in the rate law is k_ref and the energy (Ea or ΔH‡,
+kJ/mol) is an ordinary parameter, so the fit, its covariance and the sampler
+cover both with no special case (k_ref on the log scale like every rate
+constant, the energy on its own). :meth:`Problem.rate_arrays` gives each run
+the rate constants of its temperature group (:meth:`TemperatureLayout.group_values`),
+the only place per-run rate constants are made, and
+:meth:`Problem.log_rate_derivatives` adds, per group,
+
+    ∂ln k/∂E = −(1/R) (1/T − 1/T_ref)        (:meth:`TemperatureLayout.energy_slopes`)
+
+the same for Eyring, whose extra factor T/T_ref does not depend on E; so the
+exact Jacobian covers the energies (tested against finite differences).
+
 Everything else a reader needs about the temperature law of a rate
-constant -- activation parameters, their standard errors, k at any
-temperature -- is linear in (ln k_ref, E) (see :class:`Linear`), so the
-delta method is exact on that scale.
+constant -- Ea, ln A, ΔH‡, ΔS‡, ΔG‡ at 298.15 K, ln k at any temperature --
+is linear in (ln k_ref, E) (:class:`Linear`, :func:`linear_forms`), so the
+delta method is exact on that scale and posterior samples map through the
+same forms (:func:`kinfit.analysis.activation.with_posterior`). The law not
+fitted is reached through Ea = ΔH‡ + RT at T_ref.
 
 It knows nothing of mechanisms or fits: :func:`join_temperatures` works on
 parameter names and run temperatures. Energies are in kJ/mol; R, k_B and h

@@ -3,7 +3,7 @@
 Each case is a folder holding the files of one ``kinfit fit`` call
 (``experiment.toml``, ``model.toml``, data files) and ``expected.toml`` with
 the exit code and a regular expression the one-line message must match
-(``message`` for errors, ``warning`` for warnings). tests/test_catalogue.py
+(``message`` for errors, ``warning`` for warnings). tests/system/test_catalogue.py
 runs every case through the command line. Regenerate with
 
     python tests/data/make_catalogue.py

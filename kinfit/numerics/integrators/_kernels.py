@@ -4,7 +4,7 @@ The rate law is the one of :mod:`kinfit.numerics.rate_system`: r_j = k_j Π_s
 g(c_s; e_js), with g(c; e) = max(c, 0)^e clipped at zero, a chord below
 ``eps`` for orders in [0, 1) and a floor ``eps`` for negative orders;
 derivatives here are the exact ones of that piecewise law.
-``tests/test_rate_system.py`` checks both against the numpy version.
+``tests/numerics/test_rate_system.py`` checks both against the numpy version.
 
 * :func:`factors` -- g, ∂g/∂c and ∂g/∂e of every direction and species;
 * :func:`extent_rhs` -- the right-hand side in extents of reaction (or in the

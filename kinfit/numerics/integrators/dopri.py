@@ -17,10 +17,22 @@ the error test can grow without bound where the equations turn stiff, e.g.
 once a fractional-order reactant has run out).
 
 Stiffness is detected as in Hairer's DOPRI5 (h·|λ| estimated from the last
-two stages exceeding 3.25 on 15 accepted steps) or by running out of steps; such
+two stages exceeding 3.25 on 15 accepted steps), by running out of steps or
+by steps collapsing; such
 systems are reported with status :data:`~kinfit.numerics.integrators.STIFF`
 so the caller can hand them to an implicit integrator (:mod:`.rosenbrock`,
 then LSODA).
+
+When a mechanism has fewer steps than species, the state is one extent of
+reaction per step, c = c0 + N z with dz/dt = M r(c) (``RateSystem.extents``
+of :mod:`kinfit.numerics.rate_system`): fewer equations, while the error
+test and the outputs stay in concentrations. Otherwise N = I and M is the
+stoichiometry.
+
+The kernel exists in two compiled copies: ``_batch`` with sensitivities and
+``_batch_states`` without, in which the compiler knows that there are none
+and drops their loops (two to three times faster per system than one general
+copy, measured with ``_one`` called both ways in one process).
 
 The right-hand side is the compiled rate law of ``_kernels`` (the numpy
 law of :mod:`kinfit.numerics.rate_system`); :func:`right_hand_side` evaluates
