@@ -13,15 +13,6 @@ from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import load_mechanism
 
 
-@pytest.fixture(scope="module")
-def result(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("r")
-    (folder / "e.toml").write_text('[[runs]]\nname = "a"\nfile = "a.csv"\ninitial = { A = 1 }\n')
-    (folder / "a.csv").write_text("time,A\n0,1\n5,0.61\n10,0.37\n20,0.14\n")
-    return fit(load_experiment(folder / "e.toml"), load_mechanism(MODELS / "first_order.toml"),
-               starts=1)
-
-
 def test_csv_fields_are_quoted_where_needed(tmp_path):
     # a run name with a comma survives the round trip through a general CSV reader (pandas)
     import pandas as pd
