@@ -47,6 +47,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, replace
+from functools import cached_property
 from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
@@ -156,6 +157,16 @@ class FitScale:
         """Mask [n_dim] of the dimensions on a logarithmic scale."""
         return self.log10 | self.ln
 
+    @cached_property
+    def _any_ln(self):
+        # the sampler calls the conversions twice per step: skip the ln pass when unused
+        return bool(self.ln.any())
+
+    @cached_property
+    def _jacobian_weight(self):
+        # ln |dx/du| = u × weight (up to a constant): ln 10 on log10, 1 on ln, 0 elsewhere
+        return np.where(self.log10, _LN10, np.where(self.ln, 1.0, 0.0))
+
     @property
     def labels(self):
         """Names on the fitting scale: ``log10_k`` for a rate constant k."""
@@ -165,7 +176,7 @@ class FitScale:
     def to_natural(self, u):
         """Fitting-scale rows [n, n_dim] -> natural values [n, n_dim]."""
         u = np.atleast_2d(np.asarray(u, dtype=float))
-        return _natural(u, self.log10, self.ln)
+        return _natural(u, self.log10, self.ln if self._any_ln else None)
 
     def from_natural(self, x):
         """Natural values [n, n_dim] -> fitting scale [n, n_dim] (−inf for x = 0 on a log)."""
@@ -181,7 +192,8 @@ class FitScale:
         u = np.atleast_2d(np.asarray(u, dtype=float))
         m = self.n_model
         out = np.repeat(self.base[None], u.shape[0], axis=0)
-        out[:, self.free_index] = _natural(u[:, :m], self.log10[:m], self.ln[:m])
+        out[:, self.free_index] = _natural(u[:, :m], self.log10[:m],
+                                           self.ln[:m] if self._any_ln else None)
         return out
 
     def jacobian_factor(self, u):
@@ -196,7 +208,7 @@ class FitScale:
         """ln |dx/du| of each dimension up to a constant [n, n_dim]: u ln 10 on log10
         (without ln ln 10), u on ln, 0 on the natural scale."""
         u = np.atleast_2d(np.asarray(u, dtype=float))
-        return np.where(self.log10, u * _LN10, np.where(self.ln, u, 0.0))
+        return u * self._jacobian_weight
 
     def jacobian_to_scale(self, jac, u):
         """∂r/∂u [n_points, n_model] from the natural-scale Jacobian of all the
@@ -247,8 +259,9 @@ class FitScale:
 
 
 def _natural(u, log10, ln):
+    """Natural values of fitting-scale rows; `ln` None when no dimension is on ln."""
     out = np.where(log10, 10.0 ** np.clip(u, -_CLIP_LOG10, _CLIP_LOG10), u)
-    if ln.any():
+    if ln is not None and ln.any():
         out = np.where(ln, np.exp(np.clip(u, -_CLIP_LN, _CLIP_LN)), out)
     return out
 
