@@ -52,7 +52,10 @@ def contiguous(x, dtype):
     (such as those of a cached :class:`~kinfit.numerics.rate_system.RateSystem`)
     would make numba compile and cache a second copy of every kernel.
     """
-    return np.require(x, dtype=dtype, requirements=("C", "W"))
+    if (type(x) is np.ndarray and x.dtype == dtype and x.flags.c_contiguous
+            and x.flags.writeable):
+        return x                 # the usual case, checked cheaply (called ~15 times a step)
+    return np.array(x, dtype=dtype, order="C")
 
 
 @njit(cache=True, error_model="numpy")
