@@ -116,7 +116,7 @@ def make_arrhenius_study(folder, seed=20261207):
                         f'initial = {{ A = {a0} }}\n')
     (folder / "traces.csv").write_text("\n".join(rows) + "\n")
     (folder / "experiment.toml").write_text(
-        '[units]\ntime = "s"\nconcentration = "M"\n[data]\nfile = "traces.csv"\n'
+        '[units]\ntime = "s"\nconcentration = "M"\ntemperature = "K"\n[data]\nfile = "traces.csv"\n'
         '[noise]\ndefault = { absolute = 0.005 }\n' + "\n".join(runs))
     (folder / "model.toml").write_text(
         '# A -> P, free order, Arrhenius\n[[steps]]\nreaction = "A -> P"\n'
@@ -154,7 +154,7 @@ def _eyring_study(folder):
                         f'initial = {{ A = {a0}, B = {a0} }}\n')
     (folder / "traces.csv").write_text("\n".join(rows) + "\n")
     (folder / "experiment.toml").write_text(
-        '[units]\ntime = "min"\nconcentration = "mM"\n[data]\nfile = "traces.csv"\n'
+        '[units]\ntime = "min"\nconcentration = "mM"\ntemperature = "K"\n[data]\nfile = "traces.csv"\n'
         '[noise]\ndefault = { absolute = 0.05 }\n' + "\n".join(runs))
     (folder / "model.toml").write_text(
         '# A + B -> P, second order, Eyring\n[[steps]]\nreaction = "A + B -> P"\n'

@@ -16,12 +16,14 @@ from __future__ import annotations
 
 import functools
 import math
+import re
 from dataclasses import dataclass
 
 from kinfit.core.errors import KinfitError
 
 __all__ = ["Units", "UnitError", "parse_units", "check_unit", "to_kelvin", "conversion_factor",
-           "quantity_in", "rate_constant_unit", "format_power"]
+           "quantity_in", "split_quantity", "read_quantity", "rate_constant_unit",
+           "format_power"]
 
 
 class UnitError(ValueError):
@@ -93,11 +95,15 @@ def check_unit(text, kind, where):
 
 @dataclass(frozen=True)
 class Units:
-    """The units an experiment is recorded in (strings as the user wrote them)."""
+    """The units an experiment is recorded in (strings as the user wrote them).
+
+    `temperature` is ``None`` when the experiment declares none: its runs
+    then cannot carry temperatures (a bare number is never taken as kelvin).
+    """
 
     time: str = "s"
     concentration: str = "M"
-    temperature: str = "K"
+    temperature: str | None = None
 
     def rate_constant(self, order):
         """Unit of a rate constant whose rate law has overall order `order`."""
@@ -110,7 +116,9 @@ def parse_units(table, where):
     Parameters
     ----------
     table : dict
-        Keys ``time``, ``concentration``, ``temperature`` (all optional).
+        Keys ``time``, ``concentration``, ``temperature`` (all optional; time
+        and concentration default to s and M, temperature to ``None``: not
+        declared).
     where : str
         File name for messages.
     """
@@ -125,7 +133,7 @@ def parse_units(table, where):
     values = {}
     for key in ("time", "concentration", "temperature"):
         raw = table.get(key, getattr(defaults, key))
-        values[key] = check_unit(raw, key, f"{where} (units.{key})")
+        values[key] = None if raw is None else check_unit(raw, key, f"{where} (units.{key})")
     return Units(**values)
 
 
@@ -160,6 +168,92 @@ def quantity_in(text, unit):
         return float(registry().Quantity(text).to(unit).magnitude)
     except Exception as exc:  # pint raises several types; all mean "not such a quantity"
         raise UnitError(str(exc)) from None
+
+
+# A number as written in a file (optional sign, decimal point and exponent), then the
+# unit; read by this expression, never evaluated.
+_NUMBER_AND_UNIT = re.compile(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*\Z",
+                              re.DOTALL)
+
+
+def split_quantity(text):
+    """The number and the unit of a quantity written as text.
+
+    ``"10 mM"`` -> ``(10.0, "mM")``, ``"2.5e-3mol/L"`` -> ``(0.0025, "mol/L")``,
+    ``"7"`` -> ``(7.0, "")``. Spaces around and between the two are ignored.
+
+    Returns
+    -------
+    (float, str) or None
+        ``None`` when the text does not start with a number.
+    """
+    if not isinstance(text, str):
+        return None
+    m = _NUMBER_AND_UNIT.match(text)
+    if m is None:
+        return None
+    return float(m.group(1)), m.group(2)
+
+
+def read_quantity(text, kind, unit, where):
+    """A quantity written as text (``"10 mM"``), as a number in `unit`.
+
+    The number is read by a regular expression (:func:`split_quantity`), the
+    unit by pint; the unit must be one of `kind` and convertible to `unit`.
+
+    Parameters
+    ----------
+    text : str
+    kind : {"time", "concentration"}
+    unit : str
+        The unit wanted (the experiment's), already checked.
+    where : str
+        Location for messages (file, line and field).
+
+    Returns
+    -------
+    float
+
+    Raises
+    ------
+    KinfitError
+        Naming the text, what is wrong and what was expected: no number, no
+        unit, a unit pint cannot read, a unit of another kind, or one that
+        cannot be converted to `unit` (a mass concentration to a molar one,
+        which needs a molar mass).
+    """
+    example = f'"10 {unit}"'
+    parts = split_quantity(text)
+    if parts is None:
+        raise KinfitError(f"{where}: cannot read {text!r}; expected a {kind} such as {example}"
+                          f" (a number and a unit) or a plain number in {unit}")
+    number, written = parts
+    if not written:
+        raise KinfitError(f"{where}: {text!r} has no unit; write the number without quotes "
+                          f"for {unit} ({number:g}) or with its unit ({example})")
+    if not math.isfinite(number):
+        raise KinfitError(f"{where}: {text!r} is not a finite number")
+    try:
+        parsed = _parse(written)
+    except UnitError:
+        raise KinfitError(f"{where}: cannot read the unit {written!r} in {text!r}; expected a "
+                          f"{kind} unit such as {_EXAMPLES[kind]}") from None
+    if str(parsed.dimensionality) not in _DIMENSIONS[kind]:
+        raise KinfitError(f"{where}: {written!r} in {text!r} is not a {kind} unit (it has "
+                          f"dimension {parsed.dimensionality}); expected a {kind} such as "
+                          f"{example}")
+    try:
+        factor = conversion_factor(written, unit)
+    except UnitError:
+        why = ("; a mass and a molar concentration differ by a molar mass kinfit does not "
+               "know" if kind == "concentration" else "")
+        raise KinfitError(f"{where}: {text!r} cannot be converted to {unit}, the experiment's "
+                          f"{kind} unit ({parsed.dimensionality} against "
+                          f"{_parse(unit).dimensionality}{why}); give it in {unit}") from None
+    value = number * factor
+    if not math.isfinite(value):
+        raise KinfitError(f"{where}: {text!r} is not a finite number in {unit}")
+    return value
 
 
 def format_power(symbol, power):

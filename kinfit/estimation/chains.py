@@ -166,7 +166,7 @@ def load_chain(path):
     return state, meta
 
 
-def check_resumable(path, meta, fingerprint, settings):
+def check_resumable(path, meta, fingerprint, settings, names=None):
     """Refuse to resume a chain made with other settings, data or model.
 
     Parameters
@@ -179,14 +179,29 @@ def check_resumable(path, meta, fingerprint, settings):
         The fingerprint of the run about to resume (see :func:`fingerprint`).
     settings : dict
         The run's settings (``walkers``, ``seed``, ``moves``, ``noise``, ...).
+    names : sequence of str, optional
+        The run's parameter names; when they differ from the chain's, the
+        message names the difference (a chain written before fitted starting
+        concentrations were named ``A_0_r1`` has ``A0_r1``).
 
     Raises
     ------
     KinfitError
-        Naming the settings that changed.
+        Naming the settings or parameters that changed.
     """
     if meta.get("fingerprint") == fingerprint:
         return
+    old_names = meta.get("names")
+    if names is not None and old_names is not None and list(old_names) != list(names):
+        gone = [n for n in old_names if n not in names]
+        new = [n for n in names if n not in old_names]
+        renamed = [n for n in gone if "0_" in n and n.replace("0_", "_0_", 1) in new]
+        note = (f"; kinfit now names fitted starting concentrations like "
+                f"{renamed[0].replace('0_', '_0_', 1)} (was {renamed[0]})" if renamed else "")
+        raise KinfitError(f"{path}: this chain's parameters differ from this run's (in the "
+                          f"chain only: {', '.join(gone) or 'none'}; now only: "
+                          f"{', '.join(new) or 'none'}{note}); start a new chain in another "
+                          f"--out folder")
     old = meta.get("settings", {})
     changed = [f"{k} {old.get(k)!r} -> {settings.get(k)!r}"
                for k in ("walkers", "seed", "moves", "noise") if old.get(k) != settings.get(k)]

@@ -52,6 +52,7 @@ from kinfit.estimation.likelihood import (
 )
 from kinfit.estimation.linear_unknowns import resolve_signals
 from kinfit.estimation.residual_checks import check_residuals
+from kinfit.estimation.run_warnings import run_warnings
 from kinfit.estimation.scale import ScaledProblem, fit_scale
 from kinfit.inputs.mechanism import format_rate_law
 from kinfit.inputs.parameters import Role
@@ -411,6 +412,9 @@ def _result(evaluator, u, success, message, n_starts, at_best, failed, settings)
     warnings = singular + _fit_warnings(
         problem, values, at_bounds, n_starts, at_best, stats,
         () if signals is None else signals.warnings, failed, success, message) + unit_warnings
+    # Per-run warnings (kinfit.estimation.run_warnings): steps a run cannot start, a run
+    # that carries the misfit, a reference temperature outside the runs.
+    warnings += run_warnings(mech, exp, values, res)
     return FitResult(
         mechanism=mech, experiment=exp, values=values, stderr=stderr, units=units,
         roles=roles, free_names=scale.names, covariance=covariance, correlation=correlation,

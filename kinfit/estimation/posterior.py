@@ -475,7 +475,7 @@ def sample(experiment: Experiment, mechanism: Mechanism, walkers=DEFAULT_WALKERS
     previous = None
     if resume and checkpoint is not None and Path(checkpoint).exists():
         previous, old_meta = load_chain(checkpoint)
-        check_resumable(checkpoint, old_meta, chain_id, settings.to_dict())
+        check_resumable(checkpoint, old_meta, chain_id, settings.to_dict(), space.names)
     rng = np.random.default_rng(seed)
     if previous is None:
         start, _ = start_ball(space, fit_result, target, walkers, rng)

@@ -24,18 +24,20 @@ from __future__ import annotations
 
 import math
 import re
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
 
-from kinfit.core.errors import KinfitError, where
-from kinfit.core.units import Units, parse_units, to_kelvin
+from kinfit.core.errors import KinfitError, KinfitWarning, where
+from kinfit.core.units import Units, parse_units, read_quantity, to_kelvin
 from kinfit.inputs.parameters import Parameter, Role
 from kinfit.inputs.signals import parse_path_length, parse_signals, read_spectrum
 from kinfit.inputs.sources import find_line, load_toml, resolve_file
 from kinfit.inputs.tables import Trace, read_long, read_wide
+from kinfit.inputs.temperature import PLAUSIBLE_KELVIN
 
 if TYPE_CHECKING:
     from kinfit.inputs.signals import SignalSpec, Spectrum
@@ -190,8 +192,12 @@ class Experiment:
 
 
 def initial_name(species, run):
-    """Name of the fitted initial concentration of `species` in `run`: ``A0_r1``."""
-    return f"{species}0_{_identifier(run)}"
+    """Name of the fitted initial concentration of `species` in `run`: ``A_0_r1``.
+
+    The ``_0_`` keeps the species apart from the subscript zero, so that
+    species N2O5 in run d1 gives ``N2O5_0_d1``, never ``N2O50_d1``.
+    """
+    return f"{species}_0_{_identifier(run)}"
 
 
 def offset_name(run):
@@ -244,6 +250,7 @@ def load_experiment(path):
     specs = [_parse_run(i, raw, text, source, units, table.get("temperature"))
              for i, raw in enumerate(raw_runs)]
     _check_run_names([s["name"] for s in specs], text, source)
+    _warn_implausible_temperatures(specs, units, source)
     traces, spectra, files = _read_data(table, text, source, path.parent, specs, units,
                                         signals)
     runs = [_assemble_run(spec, traces.get(spec["name"], []), spectra.get(spec["name"]),
@@ -338,40 +345,8 @@ def _parse_run(index, raw, text, source, units, default_temperature):
     name = name.strip()
     loc = where(source, find_line(text, "name", "runs", index), f"run {name!r}")
 
-    temperature = raw.get("temperature", default_temperature)
-    if temperature is not None:
-        if isinstance(temperature, bool) or not isinstance(temperature, (int, float)) \
-                or not math.isfinite(temperature):
-            raise KinfitError(f"{loc}: temperature must be a number in {units.temperature}")
-        temperature = to_kelvin(float(temperature), units.temperature)
-        if temperature <= 0:
-            raise KinfitError(f"{loc}: temperature is at or below absolute zero "
-                              f"({temperature:g} K)")
-
-    initial_raw = raw.get("initial", {})
-    if not isinstance(initial_raw, dict):
-        raise KinfitError(f"{loc}: initial must be a table like initial = {{ A = 0.1, B = 0.2 }}")
-    initial, fitted = {}, {}
-    for species, value in initial_raw.items():
-        field_loc = f"{loc} (initial.{species})"
-        if isinstance(value, dict):
-            p = _fitted(initial_name(species, name), value, field_loc, Role.INITIAL, lower=0.0)
-            if p.value < 0:
-                raise KinfitError(f"{field_loc}: a concentration cannot be negative")
-            if p.vary:
-                fitted[species] = p
-            else:
-                initial[species] = p.value
-        else:
-            if isinstance(value, bool) or not isinstance(value, (int, float)) \
-                    or not math.isfinite(value):
-                raise KinfitError(f"{field_loc}: expected a concentration in "
-                                  f"{units.concentration} or a table "
-                                  f"{{ value = ..., vary = true }}, got {value!r}")
-            if value < 0:
-                raise KinfitError(f"{field_loc}: a concentration cannot be negative "
-                                  f"(got {value:g})")
-            initial[species] = float(value)
+    temperature = _run_temperature(raw, index, name, text, source, units, default_temperature)
+    initial, fitted = _initial(raw.get("initial", {}), index, name, text, source, units)
 
     offset = raw.get("time_offset")
     if offset is not None:
@@ -399,7 +374,105 @@ def _parse_run(index, raw, text, source, units, default_temperature):
                 path_length=path_length, start=None if start is None else float(start))
 
 
+def _run_temperature(raw, index, name, text, source, units, default):
+    """The run's temperature in kelvin (its own or the file's default), or ``None``.
+
+    A temperature is read only in the unit declared by ``[units] temperature``
+    (``units.temperature`` is then set; ``None`` when not declared): a number
+    with no declared unit is refused rather than taken as kelvin.
+    """
+    own = "temperature" in raw
+    value = raw["temperature"] if own else default
+    if value is None:
+        return None
+    line = find_line(text, "temperature", "runs", index) if own else find_line(text,
+                                                                               "temperature")
+    loc = where(source, line, f"run {name!r}" if own else "temperature")
+    if isinstance(value, bool) or not isinstance(value, (int, float)) \
+            or not math.isfinite(value):
+        raise KinfitError(f"{loc}: temperature must be a number in "
+                          f"{units.temperature or 'the unit of [units] temperature'}, "
+                          f"got {value!r}")
+    if units.temperature is None:
+        raise KinfitError(f"{loc}: temperature = {value:g} has no unit; declare it once in "
+                          f"the experiment file under [units] as temperature = \"degC\" or "
+                          f"temperature = \"K\" (kinfit does not assume kelvin)")
+    kelvin = to_kelvin(float(value), units.temperature)
+    if kelvin <= 0:
+        raise KinfitError(f"{loc}: temperature is at or below absolute zero "
+                          f"({value:g} {units.temperature} = {kelvin:g} K)")
+    return kelvin
+
+
+def _warn_implausible_temperatures(specs, units, source):
+    """One :class:`KinfitWarning` naming every run outside :data:`PLAUSIBLE_KELVIN`."""
+    low, high = PLAUSIBLE_KELVIN
+    odd = [s for s in specs if s["temperature"] is not None
+           and not low <= s["temperature"] <= high]
+    if not odd:
+        return
+    listed = ", ".join(f"{s['name']!r} at {s['temperature']:.2f} K" for s in odd[:3])
+    if len(odd) > 3:
+        kelvin = [s["temperature"] for s in odd]
+        listed += f" and {len(odd) - 3} more ({min(kelvin):.2f}–{max(kelvin):.2f} K)"
+    warnings.warn(f"{source}: run(s) {listed}: outside {low:g}–{high:g} K, unusual for "
+                  f"reactions in solution; check [units] temperature (now "
+                  f"{units.temperature!r})", KinfitWarning, stacklevel=3)
+
+
+def _initial(raw, index, name, text, source, units):
+    """The run's known and fitted starting concentrations, in the experiment's unit.
+
+    A value is a number in ``[units] concentration``, text with a unit
+    (``"10 mM"``, converted through :func:`kinfit.core.units.read_quantity`) or
+    a table ``{ value = ..., vary = true, min = ..., max = ... }`` whose
+    entries may be either.
+    """
+    line = find_line(text, "initial", "runs", index) or find_line(text, "name", "runs", index)
+    if not isinstance(raw, dict):
+        raise KinfitError(f"{where(source, line, f'run {name!r}')}: initial must be a table "
+                          f"like initial = {{ A = 0.1, B = 0.2 }}")
+    initial, fitted = {}, {}
+    for species, value in raw.items():
+        field_loc = where(source, line, f"run {name!r}, initial.{species}")
+        if isinstance(value, dict):
+            value = {key: read_quantity(v, "concentration", units.concentration,
+                                        where(source, line,
+                                              f"run {name!r}, initial.{species}.{key}"))
+                     if key in ("value", "min", "max") and isinstance(v, str) else v
+                     for key, v in value.items()}
+            p = _fitted(initial_name(species, name), value, field_loc, Role.INITIAL, lower=0.0)
+            if p.value < 0:
+                raise KinfitError(f"{field_loc}: a concentration cannot be negative")
+            if p.vary:
+                fitted[species] = p
+            else:
+                initial[species] = p.value
+            continue
+        value = _concentration(value, field_loc, units)
+        if value is None:
+            raise KinfitError(f"{field_loc}: expected a concentration in "
+                              f"{units.concentration} (0.1 or \"10 mM\") or a table "
+                              f"{{ value = ..., vary = true }}, got {raw[species]!r}")
+        if value < 0:
+            raise KinfitError(f"{field_loc}: a concentration cannot be negative "
+                              f"(got {raw[species]!r})")
+        initial[species] = value
+    return initial, fitted
+
+
+def _concentration(value, loc, units):
+    """A number as written, or text with a unit converted; ``None`` for anything else."""
+    if isinstance(value, str):
+        return read_quantity(value, "concentration", units.concentration, loc)
+    if isinstance(value, bool) or not isinstance(value, (int, float)) \
+            or not math.isfinite(value):
+        return None
+    return float(value)
+
+
 def _fitted(pname, spec, loc, role, lower=-math.inf):
+    """A fitted per-run :class:`Parameter` from ``{ value, vary, min, max }``."""
     unknown = set(spec) - {"value", "vary", "min", "max"}
     if unknown:
         raise KinfitError(f"{loc}: unknown key {sorted(unknown)[0]!r}; expected value, vary, "

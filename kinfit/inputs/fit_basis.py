@@ -140,8 +140,8 @@ def load_basis(path, mechanism):
         fitted = FittedRange(
             temperature=None if temps is None else (float(temps[0]), float(temps[1])),
             initial={str(s): (float(v[0]), float(v[1])) for s, v in rng["initial"].items()})
-        units = Units(**{k: str(raw["units"][k]) for k in ("time", "concentration",
-                                                           "temperature")})
+        units = Units(**{k: None if raw["units"][k] is None else str(raw["units"][k])
+                         for k in ("time", "concentration", "temperature")})
     except KinfitError:
         raise
     except json.JSONDecodeError as exc:

@@ -43,12 +43,13 @@ from dataclasses import dataclass
 from scipy import constants as _constants
 
 from kinfit.core.errors import KinfitError, where
-from kinfit.core.units import to_kelvin
+from kinfit.core.units import split_quantity, to_kelvin
 from kinfit.inputs.parameters import Role
 from kinfit.inputs.sources import find_line
 
-__all__ = ["R", "K_B", "H", "KILO", "STANDARD_TEMPERATURE", "ARRHENIUS", "EYRING",
-           "ENERGY_UNIT", "RateLaw", "TemperatureSpec", "parse_temperature", "check_roles"]
+__all__ = ["R", "K_B", "H", "KILO", "STANDARD_TEMPERATURE", "PLAUSIBLE_KELVIN", "ARRHENIUS",
+           "EYRING", "ENERGY_UNIT", "RateLaw", "TemperatureSpec", "parse_temperature",
+           "check_roles", "reference_warning"]
 
 R = _constants.R                  # molar gas constant, J mol^-1 K^-1 (CODATA)
 K_B = _constants.k                # Boltzmann constant, J K^-1 (CODATA)
@@ -57,13 +58,16 @@ KILO = _constants.kilo            # J per kJ
 # 25 °C, the temperature at which ΔG‡ is quoted (common practice)
 STANDARD_TEMPERATURE = _constants.zero_Celsius + 25.0
 
+# Run temperatures outside this range (kelvin) are unusual for reactions in solution and
+# more often a unit slip (°C read as K) than a real condition: kinfit warns (common practice).
+PLAUSIBLE_KELVIN = (150.0, 700.0)
+
 ARRHENIUS = "arrhenius"
 EYRING = "eyring"
 ENERGY_UNIT = "kJ/mol"
 _ROLE_OF_LAW = {ARRHENIUS: Role.ACTIVATION_ENERGY, EYRING: Role.ACTIVATION_ENTHALPY}
 _KEYS = {ARRHENIUS, EYRING, "kappa", "reference"}
 _NAME = re.compile(r"[A-Za-z][A-Za-z0-9_]*\Z")
-_QUANTITY = re.compile(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*\Z")
 
 
 @dataclass(frozen=True)
@@ -199,12 +203,12 @@ def _parse_reference(value, loc):
     if isinstance(value, (int, float)):
         kelvin = float(value)
     elif isinstance(value, str):
-        m = _QUANTITY.match(value)
-        if m is None:
+        parts = split_quantity(value)
+        if parts is None:
             raise KinfitError(f"{loc}: expected {expected}, got {value!r}")
-        unit = m.group(2) or "K"
+        number, unit = parts
         try:
-            kelvin = to_kelvin(float(m.group(1)), unit)
+            kelvin = to_kelvin(number, unit or "K")
         except Exception:  # pint raises several types; all mean "not a temperature"
             raise KinfitError(f"{loc}: cannot read {value!r} as a temperature; expected "
                               f"{expected}") from None
@@ -214,6 +218,42 @@ def _parse_reference(value, loc):
         raise KinfitError(f"{loc}: the reference temperature must be above absolute zero "
                           f"(got {kelvin:g} K)")
     return kelvin
+
+
+def reference_warning(spec, temperatures, source="<model>"):
+    """A warning when the declared T_ref lies outside the runs' temperatures.
+
+    k_ref is then an extrapolation: its standard error and its correlation
+    with the energy grow with the distance from the runs (the point of T_ref
+    at the centre of 1/T), and a slip such as runs written in °C but read in
+    another unit shows here first.
+
+    Parameters
+    ----------
+    spec : TemperatureSpec
+    temperatures : sequence of float or None
+        The runs' temperatures in kelvin (``None`` entries are skipped).
+    source : str
+        The model file, for the message.
+
+    Returns
+    -------
+    str or None
+        ``None`` when T_ref is not declared, inside the range, or there are
+        no run temperatures.
+    """
+    known = [float(t) for t in temperatures if t is not None]
+    if spec is None or spec.reference is None or not known:
+        return None
+    low, high, ref = min(known), max(known), spec.reference
+    if low * (1 - 1e-9) <= ref <= high * (1 + 1e-9):
+        return None
+    celsius = _constants.zero_Celsius
+    return (f"{source}: the reference temperature {ref:.2f} K ({ref - celsius:.1f} °C) lies "
+            f"outside the runs' temperatures {low:.2f}–{high:.2f} K ({low - celsius:.1f}–"
+            f"{high - celsius:.1f} °C), so k at the reference is an extrapolation; check "
+            f"[units] temperature of the experiment, or leave reference out to use the "
+            f"centre of the runs' range")
 
 
 def check_roles(spec, roles, defined, text, source):

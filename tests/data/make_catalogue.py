@@ -214,6 +214,27 @@ case("run_names_differ_only_in_punctuation", message=r"differ only in punctuatio
                                                           "r 1,2,A,0.8\n"})
 case("temperature_as_text", message=r"temperature must be a number",
      files={"experiment.toml": sub(EXPERIMENT, 'name = "r1"', 'name = "r1"\ntemperature = "warm"')})
+case("temperature_without_unit",
+     message=r"experiment\.toml, line 9 \(run 'r1'\): temperature = 25 has no unit; declare "
+             r"it .*under \[units\] as temperature",
+     files={"experiment.toml": sub(EXPERIMENT, 'name = "r1"', 'name = "r1"\ntemperature = 25')})
+case("default_temperature_without_unit",
+     message=r"experiment\.toml, line 1 \(temperature\): temperature = 298\.15 has no unit",
+     files={"experiment.toml": "temperature = 298.15\n" + EXPERIMENT})
+case("temperature_in_celsius_read_as_kelvin", exit=0,
+     warning=r"experiment\.toml: run\(s\) 'r1' at 25\.00 K: outside 150–700 K",
+     files={"experiment.toml": sub(sub(EXPERIMENT, 'name = "r1"', 'name = "r1"\ntemperature = 25'),
+                                   'concentration = "M"', 'concentration = "M"\ntemperature = "K"')})
+case("initial_in_grams_for_a_molar_unit",
+     message=r"line 9 \(run 'r1', initial\.A\): '50 g/L' cannot be converted to M",
+     files={"experiment.toml": sub(EXPERIMENT, "A = 1.0", 'A = "50 g/L"')})
+case("initial_with_a_time_unit",
+     message=r"line 9 \(run 'r1', initial\.A\): 's' in '1 s' is not a concentration unit",
+     files={"experiment.toml": sub(EXPERIMENT, "A = 1.0", 'A = "1 s"')})
+case("fitted_initial_bound_in_an_unknown_unit",
+     message=r"line 9 \(run 'r1', initial\.A\.max\): cannot read the unit 'blorps'",
+     files={"experiment.toml": sub(EXPERIMENT, "A = 1.0",
+                                   'A = { value = "1 M", vary = true, max = "2 blorps" }')})
 case("noise_for_another_species", message=r"no noise is declared for 'A'",
      files={"experiment.toml": EXPERIMENT + "[noise]\nB = { absolute = 0.01 }\n"})
 case("data_file_is_a_folder", message=r"data file 'sub' is not a file",

@@ -52,13 +52,13 @@ def test_nist_boxbod(tmp_path, start):
     result = fit(load_experiment(tmp_path / "e.toml"), mech, starts=1)
     assert result.success
     # at least 5 significant digits of the certified values (required)
-    assert sig_digits_equal(result.values["A0_bod"], BOXBOD_B1, 5)
+    assert sig_digits_equal(result.values["A_0_bod"], BOXBOD_B1, 5)
     assert sig_digits_equal(result.values["k"], BOXBOD_B2, 5)
-    assert result.values["A0_bod"] == pytest.approx(BOXBOD_B1, rel=2e-6)
+    assert result.values["A_0_bod"] == pytest.approx(BOXBOD_B1, rel=2e-6)
     assert result.values["k"] == pytest.approx(BOXBOD_B2, rel=5e-6)
     assert result.chi2 == pytest.approx(BOXBOD_RSS, rel=1e-9)
     # certified standard deviations use σ² = RSS/(N - p), as kinfit does for unknown noise
-    assert result.stderr["A0_bod"] == pytest.approx(BOXBOD_SD1, rel=1e-5)
+    assert result.stderr["A_0_bod"] == pytest.approx(BOXBOD_SD1, rel=1e-5)
     assert result.stderr["k"] == pytest.approx(BOXBOD_SD2, rel=1e-5)
     assert result.units["k"] == "d^-1"
 

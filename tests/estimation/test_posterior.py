@@ -29,7 +29,7 @@ def test_declared_noise_posterior_is_the_least_squares_answer(line_posterior):
     post, paths = line_posterior
     ols = sm.OLS(paths["y"], sm.add_constant(paths["t"])).fit(
         cov_type="fixed scale", cov_kwds={"scale": LINE_SIGMA ** 2})
-    expected = {"A0_r1": (ols.params[0], ols.bse[0]), "k": (-ols.params[1], ols.bse[1])}
+    expected = {"A_0_r1": (ols.params[0], ols.bse[0]), "k": (-ols.params[1], ols.bse[1])}
     for name, (value, se) in expected.items():
         s, ess = post.summary[name], post.diagnostics.ess[name]
         assert ess > 300
@@ -70,7 +70,7 @@ def test_unknown_noise_posterior_is_the_t_interval(tmp_path):
 def test_three_intervals_side_by_side(line_posterior):
     post, _ = line_posterior
     rows = {r["name"]: r for r in compare_intervals(post)}
-    for name in ("k", "A0_r1"):
+    for name in ("k", "A_0_r1"):
         row = rows[name]
         # a straight line: covariance, profile and posterior intervals agree
         np.testing.assert_allclose(row["profile"], row["covariance"], rtol=1e-3)
@@ -82,7 +82,7 @@ def test_three_intervals_side_by_side(line_posterior):
 def test_posterior_json_contract(line_posterior):
     post, _ = line_posterior
     data = json.loads(json.dumps(post.to_dict()))
-    for name in ("k", "A0_r1"):
+    for name in ("k", "A_0_r1"):
         entry = data["parameters"][name]
         assert {"median", "mean", "sd", "ci95", "ci68", "prior", "profile", "fit"} <= set(entry)
         assert entry["ci95"][0] < entry["ci68"][0] < entry["median"] < entry["ci68"][1] \

@@ -27,11 +27,11 @@ def test_straight_line_profile_equals_the_ols_interval(tmp_path):
         cov_type="fixed scale", cov_kwds={"scale": LINE_SIGMA ** 2})
     (a_lo, a_hi), (b_lo, b_hi) = ols.conf_int(alpha=0.05)
     k95 = profiles.parameters["k"].intervals[0.95]
-    a95 = profiles.parameters["A0_r1"].intervals[0.95]
+    a95 = profiles.parameters["A_0_r1"].intervals[0.95]
     np.testing.assert_allclose(k95, [-b_hi, -b_lo], rtol=2e-4)    # k is minus the slope
     np.testing.assert_allclose(a95, [a_lo, a_hi], rtol=2e-5)
     (a68lo, a68hi), _ = ols.conf_int(alpha=0.32)
-    np.testing.assert_allclose(profiles.parameters["A0_r1"].intervals[0.68], [a68lo, a68hi],
+    np.testing.assert_allclose(profiles.parameters["A_0_r1"].intervals[0.68], [a68lo, a68hi],
                                rtol=2e-5)
     assert all(p.closed for p in profiles.parameters.values())
     assert profiles.deviance == "chi2" and profiles.warnings == ()

@@ -30,10 +30,10 @@ def _first_order_problem(small):
 def test_scales_bounds_and_start_box_by_role(tmp_path):
     # the line model: k in [0, 1] from 0.04, A0 in [0, 5] from 1.0 (tests/conftest.py)
     scale = fit_scale(_line_problem(tmp_path))
-    assert scale.names == ("k", "A0_r1")
+    assert scale.names == ("k", "A_0_r1")
     assert scale.roles == (Role.RATE_CONSTANT, Role.INITIAL)
     assert scale.scales == ("log10", "natural")
-    assert scale.labels == ("log10_k", "A0_r1")
+    assert scale.labels == ("log10_k", "A_0_r1")
     assert scale.lower[0] == -math.inf and scale.upper[0] == 0.0       # log10 of [0, 1]
     assert scale.start[0] == pytest.approx(math.log10(0.04))
     # open lower bound of log10 k: 2 decades below the start; finite bounds are the box

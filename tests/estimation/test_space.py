@@ -24,8 +24,8 @@ def _problem(folder, declared=True):
 
 def test_layout_scales_and_default_priors(tmp_path):
     space = parameter_space(_problem(tmp_path))
-    assert space.names == ("k", "A0_r1")
-    assert space.labels == ("log10_k", "A0_r1")
+    assert space.names == ("k", "A_0_r1")
+    assert space.labels == ("log10_k", "A_0_r1")
     assert space.noise == "declared"
     assert [p.kind for p in space.priors] == ["uniform", "uniform"]   # k's from the model file
     assert space.upper[0] == 0.0 and space.lower[0] == -math.inf     # log10 of [0, 1]
@@ -46,7 +46,7 @@ def test_unknown_noise_adds_one_sigma_per_species(tmp_path):
     problem = _problem(tmp_path, declared=False)
     space = parameter_space(problem)
     assert space.noise == "per-species"
-    assert space.names == ("k", "A0_r1", "sigma_A")
+    assert space.names == ("k", "A_0_r1", "sigma_A")
     assert space.priors[-1].kind == "log-uniform"
     shared = parameter_space(problem, noise="shared")
     assert shared.names[-1] == "sigma"

@@ -2,14 +2,17 @@
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pytest
 from conftest import DEMO, SMALL_EXPERIMENT, SMALL_TRACES
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from scipy import constants
 from scipy.constants import convert_temperature
 
-from kinfit.core.errors import KinfitError
+from kinfit.core.errors import KinfitError, KinfitWarning
 from kinfit.inputs.experiment import initial_name, load_experiment
 
 
@@ -59,7 +62,7 @@ def test_wide_layout_with_gaps_and_fitted_initial(files):
     np.testing.assert_array_equal(run.traces[1].times, [0, 2, 3])   # the empty cell is skipped
     np.testing.assert_array_equal(run.traces[1].lines, [2, 4, 6])
     assert run.initial == {"B": 5.0}
-    assert run.fitted_initial["A"].name == initial_name("A", "run 1") == "A0_run_1"
+    assert run.fitted_initial["A"].name == initial_name("A", "run 1") == "A_0_run_1"
     assert run.time_offset.name == "t0_run_1" and run.time_offset.vary
 
 
@@ -89,6 +92,89 @@ def test_noise_declarations(files):
     trace = exp.runs[0].traces[0]
     np.testing.assert_allclose(exp.sigma(trace),
                                np.sqrt(0.01 ** 2 + (0.02 * trace.values) ** 2))
+
+
+def test_fitted_starting_concentration_names_keep_the_species_apart_from_the_zero():
+    # species N2O5 in run d1: the old form glued the subscript zero to the name (N2O50_d1)
+    assert initial_name("N2O5", "d1") == "N2O5_0_d1"
+    assert initial_name("A", "run 1") == "A_0_run_1"
+
+
+def test_starting_concentrations_with_units(files):
+    # SI prefixes from scipy.constants (CODATA/SI) as the outside reference; 1 M = 1 mol/L
+    experiment = SMALL_EXPERIMENT.replace('concentration = "M"', 'concentration = "mM"').replace(
+        "A = 1.0", 'A = "1 M", B = "250 uM", C = "2e-3mol/L", '
+                   'D = { value = "0.5 M", vary = true, min = "100 mM", max = "2 mol/L" }, '
+                   'E = { value = "40 µM", vary = false }')
+    run = load_experiment(experiment_with(files, experiment=experiment)).runs[0]
+    milli, micro = constants.milli, constants.micro
+    assert run.initial["A"] == pytest.approx(1.0 / milli)
+    assert run.initial["B"] == pytest.approx(250 * micro / milli)
+    assert run.initial["C"] == pytest.approx(2e-3 / milli)
+    assert run.initial["E"] == pytest.approx(40 * micro / milli)
+    d = run.fitted_initial["D"]
+    assert (d.value, d.min, d.max) == pytest.approx((0.5 / milli, 100.0, 2.0 / milli))
+
+
+@pytest.mark.parametrize("initial, message", [
+    ('A = "50 g/L"', r"line 9 \(run 'r1', initial\.A\): '50 g/L' cannot be converted to M, "
+                     r"the experiment's concentration unit"),
+    ('A = "3 min"', r"line 9 \(run 'r1', initial\.A\): 'min' in '3 min' is not a concentration"),
+    ('A = { value = 1, vary = true, max = "2 m" }',
+     r"line 9 \(run 'r1', initial\.A\.max\): 'm' in '2 m' is not a concentration unit"),
+    ('A = "-2 mM"', r"initial\.A\): a concentration cannot be negative \(got '-2 mM'\)"),
+])
+def test_starting_concentrations_with_wrong_units_are_refused(files, initial, message):
+    path = experiment_with(files, experiment=SMALL_EXPERIMENT.replace("A = 1.0", initial))
+    with pytest.raises(KinfitError, match=message):
+        load_experiment(path)
+
+
+@pytest.mark.parametrize("experiment, message", [
+    # runs at 10-50 meant as °C were once read as 10-50 K without a word
+    (SMALL_EXPERIMENT.replace('name = "r1"', 'name = "r1"\ntemperature = 25'),
+     r"experiment\.toml, line 9 \(run 'r1'\): temperature = 25 has no unit; declare it once "
+     r"in the experiment file under \[units\] as temperature = \"degC\""),
+    ("temperature = 25\n" + SMALL_EXPERIMENT,
+     r"experiment\.toml, line 1 \(temperature\): temperature = 25 has no unit"),
+])
+def test_a_temperature_without_a_declared_unit_is_refused(files, experiment, message):
+    with pytest.raises(KinfitError, match=message):
+        load_experiment(experiment_with(files, experiment=experiment))
+
+
+def test_no_temperature_needs_no_temperature_unit(small):
+    exp = load_experiment(small["experiment"])
+    assert exp.runs[0].temperature is None and exp.units.temperature is None
+
+
+def test_implausible_temperatures_are_named_in_a_warning(files):
+    # 150-700 K: the range of solution kinetics (common practice); 25 K is a °C slip
+    experiment = SMALL_EXPERIMENT.replace('name = "r1"', 'name = "r1"\ntemperature = 25')
+    experiment = experiment.replace('concentration = "M"', 'concentration = "M"\n'
+                                                           'temperature = "K"')
+    with pytest.warns(KinfitWarning, match=r"experiment\.toml: run\(s\) 'r1' at 25\.00 K: "
+                                           r"outside 150–700 K.*\[units\] temperature"):
+        exp = load_experiment(experiment_with(files, experiment=experiment))
+    assert exp.runs[0].temperature == 25.0
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", KinfitWarning)
+        celsius = load_experiment(experiment_with(
+            files, experiment=experiment.replace('temperature = "K"', 'temperature = "degC"')))
+    # 25 degC in kelvin, against scipy.constants (CODATA-based reference)
+    assert celsius.runs[0].temperature == pytest.approx(constants.zero_Celsius + 25.0)
+
+
+def test_many_implausible_runs_are_summarised(files):
+    runs = "".join(f'[[runs]]\nname = "r{i}"\ntemperature = {10 * i}\ninitial = {{ A = 1 }}\n'
+                   for i in range(1, 6))
+    traces = "run,time,species,value\n" + "".join(f"r{i},{t},A,{1 - t / 10}\n"
+                                                    for i in range(1, 6) for t in (0, 1, 2))
+    files("traces.csv", traces)
+    files("e.toml", '[units]\ntemperature = "K"\n[data]\nfile = "traces.csv"\n' + runs)
+    with pytest.warns(KinfitWarning, match=r"run\(s\) 'r1' at 10\.00 K, 'r2' at 20\.00 K, "
+                                           r"'r3' at 30\.00 K and 2 more \(10\.00–50\.00 K\)"):
+        load_experiment(files.folder / "e.toml")
 
 
 # ---------------------------------------------------------------- bad input
@@ -148,7 +234,8 @@ def test_latin1_file_is_refused_with_its_line(files):
     (SMALL_EXPERIMENT.replace('name = "r1"', 'name = "r1"\nsmell = 1'),
      r"unknown key 'smell' in a run"),
     (SMALL_EXPERIMENT.replace("A = 1.0", "A = -1.0"), r"cannot be negative"),
-    (SMALL_EXPERIMENT.replace("A = 1.0", 'A = "lots"'), r"initial\.A\): expected a concentration"),
+    (SMALL_EXPERIMENT.replace("A = 1.0", 'A = "lots"'),
+     r"initial\.A\): cannot read 'lots'; expected a concentration"),
     (SMALL_EXPERIMENT.replace("A = 1.0", "A = { value = 1, vary = true, min = 2 }"),
      r"outside its bounds"),
     (SMALL_EXPERIMENT.replace("[[runs]]", "[[runs]\n"), r"line 7, column \d+: not valid TOML"),

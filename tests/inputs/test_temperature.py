@@ -99,3 +99,30 @@ def test_temperature_table_parser_raises_only_its_own_error(raw):
     except KinfitError:
         return
     assert spec.laws and spec.kappa > 0
+
+
+# --------------------------------------------------- temperatures against the runs
+
+def test_plausible_range_is_that_of_solution_kinetics():
+    # 150-700 K (common practice): below, most solvents are frozen; above, most organic
+    # molecules decompose; 25 (°C read as K) lies far below
+    low, high = tm.PLAUSIBLE_KELVIN
+    assert low < sc.convert_temperature(-78, "C", "K")      # dry-ice bath, still plausible
+    assert high > sc.convert_temperature(300, "C", "K")
+    assert not low <= 25.0 <= high
+
+
+def test_reference_outside_the_runs_is_named():
+    # runs at 10-50 °C meant, read as 10-50 K; reference 25 °C (scipy.constants conversion)
+    mech = mechanism_from_text(MODEL + 'arrhenius = { k = "Ea" }\nreference = "25 degC"\n',
+                               source="m.toml")
+    message = tm.reference_warning(mech.temperature, [10.0, 30.0, 50.0], "m.toml")
+    assert message.startswith("m.toml: the reference temperature 298.15 K (25.0 °C) lies "
+                              "outside the runs' temperatures 10.00–50.00 K")
+    assert "[units] temperature" in message
+    inside = [sc.convert_temperature(t, "C", "K") for t in (10.0, 30.0, 50.0)]
+    assert tm.reference_warning(mech.temperature, inside) is None
+    assert tm.reference_warning(mech.temperature, [None, None]) is None
+    # the default reference (centre of the runs' 1/T) is always inside
+    default = mechanism_from_text(MODEL + 'arrhenius = { k = "Ea" }\n')
+    assert tm.reference_warning(default.temperature, [10.0, 50.0]) is None

@@ -24,9 +24,9 @@ def test_fit_equals_ordinary_least_squares(tmp_path):
     exp, mech, t, y = zero_order_case(tmp_path)
     ols = sm.OLS(y, sm.add_constant(t)).fit()
     result = fit(exp, mech, starts=1)
-    assert result.values["A0_r1"] == pytest.approx(ols.params[0], rel=1e-7)
+    assert result.values["A_0_r1"] == pytest.approx(ols.params[0], rel=1e-7)
     assert result.values["k"] == pytest.approx(-ols.params[1], rel=1e-6)
-    assert result.stderr["A0_r1"] == pytest.approx(ols.bse[0], rel=1e-5)
+    assert result.stderr["A_0_r1"] == pytest.approx(ols.bse[0], rel=1e-5)
     assert result.stderr["k"] == pytest.approx(ols.bse[1], rel=1e-5)
     assert result.log_likelihood == pytest.approx(ols.llf, abs=1e-8)
     assert result.aic == pytest.approx(ols.aic, abs=1e-7)
@@ -41,7 +41,7 @@ def test_fit_equals_ordinary_least_squares(tmp_path):
 def test_declared_noise_likelihood_matches_scipy(tmp_path):
     # Reference: scipy.stats.norm.logpdf summed over the points.
     exp, mech, t, y = zero_order_case(tmp_path, noise="[noise]\ndefault = { absolute = 0.02 }")
-    values = {"k": 0.05, "A0_r1": 1.0}
+    values = {"k": 0.05, "A_0_r1": 1.0}
     model = 1.0 - 0.05 * t
     assert log_likelihood(mech, exp, values) == pytest.approx(
         norm.logpdf(y, loc=model, scale=0.02).sum(), rel=1e-9)

@@ -291,6 +291,8 @@ def test_two_stage_that_cannot_run_is_skipped_with_a_warning(tmp_path):
         arrhenius = { k = "Ea" }
     """)
     write(tmp_path, "experiment.toml", """
+        [units]
+        temperature = "K"
         [data]
         file = "traces.csv"
         [[runs]]
@@ -396,7 +398,7 @@ def test_sample_command(tmp_path):
     assert "covariance 95 %" in result.output and "profile 95 %" in result.output
     assert "posterior 95 %" in result.output and "Caution" in result.output
     data = json.loads((out / "posterior.json").read_text())
-    assert set(data["parameters"]) == {"k", "A0_r1"}
+    assert set(data["parameters"]) == {"k", "A_0_r1"}
     assert data["settings"]["steps"] == 400 and data["seed"] == 3
     for name in ("chain.npz", "corner.png", "bands.png", "profiles.png",
                  "posterior_summary.txt"):
