@@ -28,7 +28,9 @@ fitted parameters). A run is named when both
 * the upper-tail p-value of F is below 0.01 / n_runs (Bonferroni over the
   runs, so that a study of many runs does not name one by chance).
 
-A run named this way is fitted much worse than the rest: a wrong starting
+The comparison assumes what the fit itself assumes: one noise level for
+every point (or declared σ, which puts every residual on the scale of its
+noise). A run named this way is fitted much worse than the rest: a wrong starting
 concentration, temperature or data file, or noisier readings (then declare
 the noise). With fewer than two runs nothing is compared.
 """

@@ -17,6 +17,10 @@ in a ``[signals]`` table, read by :mod:`kinfit.inputs.signals`; a run's ``spectr
 names its matrix of spectra, ``path_length`` its cell and ``start`` the time
 before which readings are left out.
 
+Nothing is guessed: a run temperature needs ``[units] temperature`` (a bare
+number is refused, never taken as kelvin; runs outside 150–700 K are warned
+about), and a starting concentration is a number in ``[units] concentration``
+or text with a unit (``"10 mM"``) converted through :mod:`kinfit.core.units`.
 Every problem is reported with the file, the line and what was expected.
 """
 
@@ -394,9 +398,9 @@ def _run_temperature(raw, index, name, text, source, units, default):
                           f"{units.temperature or 'the unit of [units] temperature'}, "
                           f"got {value!r}")
     if units.temperature is None:
-        raise KinfitError(f"{loc}: temperature = {value:g} has no unit; declare it once in "
-                          f"the experiment file under [units] as temperature = \"degC\" or "
-                          f"temperature = \"K\" (kinfit does not assume kelvin)")
+        raise KinfitError(f"{loc}: temperature = {value:g} has no unit; declare [units] "
+                          f"temperature = \"degC\" (or \"K\") in the experiment file; kinfit "
+                          f"does not assume kelvin")
     kelvin = to_kelvin(float(value), units.temperature)
     if kelvin <= 0:
         raise KinfitError(f"{loc}: temperature is at or below absolute zero "

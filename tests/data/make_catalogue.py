@@ -216,7 +216,7 @@ case("temperature_as_text", message=r"temperature must be a number",
      files={"experiment.toml": sub(EXPERIMENT, 'name = "r1"', 'name = "r1"\ntemperature = "warm"')})
 case("temperature_without_unit",
      message=r"experiment\.toml, line 9 \(run 'r1'\): temperature = 25 has no unit; declare "
-             r"it .*under \[units\] as temperature",
+             r"\[units\] temperature",
      files={"experiment.toml": sub(EXPERIMENT, 'name = "r1"', 'name = "r1"\ntemperature = 25')})
 case("default_temperature_without_unit",
      message=r"experiment\.toml, line 1 \(temperature\): temperature = 298\.15 has no unit",

@@ -133,8 +133,8 @@ def test_starting_concentrations_with_wrong_units_are_refused(files, initial, me
 @pytest.mark.parametrize("experiment, message", [
     # runs at 10-50 meant as °C were once read as 10-50 K without a word
     (SMALL_EXPERIMENT.replace('name = "r1"', 'name = "r1"\ntemperature = 25'),
-     r"experiment\.toml, line 9 \(run 'r1'\): temperature = 25 has no unit; declare it once "
-     r"in the experiment file under \[units\] as temperature = \"degC\""),
+     r"experiment\.toml, line 9 \(run 'r1'\): temperature = 25 has no unit; declare \[units\] "
+     r"temperature = \"degC\" \(or \"K\"\) in the experiment file"),
     ("temperature = 25\n" + SMALL_EXPERIMENT,
      r"experiment\.toml, line 1 \(temperature\): temperature = 25 has no unit"),
 ])
