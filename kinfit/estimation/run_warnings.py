@@ -23,16 +23,18 @@ variance-ratio test of Snedecor; the degrees of freedom ignore the few
 fitted parameters). A run is named when both
 
 * F ≥ 4: its root-mean-square residual is at least twice the other runs'
-  (a size that matters, not only a detectable one: with thousands of points
-  the test alone would name trivial differences; common practice), and
+  (kinfit's choice of a size that matters: with thousands of points the
+  test alone would name trivial differences), and
 * the upper-tail p-value of F is below 0.01 / n_runs (Bonferroni over the
   runs, so that a study of many runs does not name one by chance).
 
 The comparison assumes what the fit itself assumes: one noise level for
 every point (or declared σ, which puts every residual on the scale of its
-noise). A run named this way is fitted much worse than the rest: a wrong starting
-concentration, temperature or data file, or noisier readings (then declare
-the noise). With fewer than two runs nothing is compared.
+noise). A run named this way is fitted much worse than the rest: a wrong
+starting concentration, temperature or data file, noisier readings (then
+declare the noise), or a model that misses what that run's conditions
+show (a wrong candidate in a ranking typically fails on one run). With
+fewer than two runs nothing is compared.
 """
 
 from __future__ import annotations
@@ -121,9 +123,11 @@ def run_warnings(mechanism, experiment, values, residuals):
         out.append(reference)
     for name, share, points, ratio, p in misfit_runs(experiment, residuals):
         share = f"{share:.0%}" if share < 0.995 else "over 99%"
+        test = f"p = {p:.2g}" if p >= 1e-16 else "p < 1e-16"
         out.append(f"run {name!r} carries {share} of the sum of squared residuals with "
                    f"{points:.0%} of the points (its root-mean-square residual is "
                    f"{math.sqrt(ratio):.3g} times the other runs', variance-ratio test "
-                   f"{f'p = {p:.2g}' if p >= 1e-16 else 'p < 1e-16'}): check its starting concentrations, temperature and data file, "
-                   f"or declare the noise if its readings are noisier")
+                   f"{test}): check its starting concentrations, temperature and data file; "
+                   f"if they are right, the model misses what this run's conditions show, or "
+                   f"its readings are noisier (then declare the noise)")
     return out
