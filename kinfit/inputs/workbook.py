@@ -129,6 +129,8 @@ def _open_sheet(path, shown, sheet):
             with pd.ExcelFile(path, engine="openpyxl") as book:
                 names = list(book.sheet_names)
                 listing = ", ".join(repr(n) for n in names)
+                if not names:
+                    raise KinfitError(f"{shown}: the workbook has no sheet that can be read")
                 if sheet is None and len(names) != 1:
                     raise KinfitError(f"{shown}: the workbook has {len(names)} sheets "
                                       f"({listing}); name the one with the data, like "

@@ -276,3 +276,46 @@ def test_a_table_written_as_csv_and_as_xlsx_gives_the_same_traces(tmp_path_facto
     (folder / "traces.csv").write_text(as_csv(long), encoding="utf-8")
     assert_same_traces(load_experiment(experiment(folder, LONG, "data.xlsx")),
                        load_experiment(experiment(folder, LONG, "traces.csv")))
+
+
+def _good_workbook_bytes():
+    buffer = io.BytesIO()
+    save_workbook(buffer, {"r1": GOOD})
+    return buffer.getvalue()
+
+
+GOOD_BYTES = _good_workbook_bytes()
+with zipfile.ZipFile(io.BytesIO(GOOD_BYTES)) as _book:
+    MEMBERS = [item.filename for item in _book.infolist()]
+
+
+def _damaged(action, member, cut):
+    """GOOD_BYTES truncated, or with one member dropped or cut short."""
+    if action == "truncate":
+        return GOOD_BYTES[:cut % len(GOOD_BYTES)]
+    out = io.BytesIO()
+    with zipfile.ZipFile(io.BytesIO(GOOD_BYTES)) as src, zipfile.ZipFile(out, "w") as dst:
+        for name in MEMBERS:
+            data = src.read(name)
+            if name == member:
+                if action == "drop":
+                    continue
+                data = data[:cut % (len(data) + 1)]
+            dst.writestr(name, data)
+    return out.getvalue()
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow,
+                                                                  HealthCheck.function_scoped_fixture])
+@given(st.sampled_from(["truncate", "drop", "cut"]), st.sampled_from(MEMBERS),
+       st.integers(0, 10 ** 6))
+def test_a_damaged_workbook_gives_a_table_or_a_kinfit_error(tmp_path_factory, action, member,
+                                                            cut):
+    path = tmp_path_factory.mktemp("damaged") / "r1.xlsx"
+    path.write_bytes(_damaged(action, member, cut))
+    try:
+        table = read_sheet(path, "r1.xlsx")
+    except KinfitError as exc:
+        assert str(exc).startswith("r1.xlsx")
+    else:   # a part the values do not need (styles, properties) may go missing
+        np.testing.assert_array_equal(table.numbers(0)[0], [0, 10, 20, 30])
