@@ -315,15 +315,17 @@ def check_long_header(header, shown, line):
                               f"layout's times, values and σ are in the experiment's [units] "
                               f"(name the column {name.lower()!r} and declare its unit there)")
     unknown = [c for c in header if c.lower() not in known]
+    lower = [c.lower() for c in header]
+    missing = [c for c in LONG_COLUMNS if c not in lower]
+    if missing:
+        also = f"; unknown: {', '.join(map(repr, unknown))}" if unknown else ""
+        raise KinfitError(f"{at(shown, line)}: missing column(s) {', '.join(missing)}; the long "
+                          f"layout needs run,time,species,value (found: {', '.join(header)}"
+                          f"{also})")
     if unknown:
         raise KinfitError(f"{at(shown, line)}: unknown column {unknown[0]!r}; the long layout "
                           f"has the columns run,time,species,value and optionally sigma (each "
                           f"reading's standard deviation)")
-    lower = [c.lower() for c in header]
-    missing = [c for c in LONG_COLUMNS if c not in lower]
-    if missing:
-        raise KinfitError(f"{at(shown, line)}: missing column(s) {', '.join(missing)}; the long "
-                          f"layout needs run,time,species,value (found: {', '.join(header)})")
 
 
 def _long_columns(frame, lines, shown):

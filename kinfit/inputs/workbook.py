@@ -68,9 +68,7 @@ def read_sheet(path, shown=None, sheet=None, anchor="time", text_columns=("run",
     from openpyxl.utils import get_column_letter
 
     shown = str(path) if shown is None else shown
-    grid, formulas, name = _open_sheet(path, shown, sheet)
-    place = SheetPlace(f"{shown}, sheet {name!r}")
-    _refuse_unreadable(grid, formulas, place)
+    grid, formulas, place = _open_sheet(path, shown, sheet)
     filled = [[c for c in range(grid.shape[1]) if not _empty(grid[r, c])]
               for r in range(grid.shape[0])]
     nonblank = [r for r in range(grid.shape[0]) if filled[r]]
@@ -112,7 +110,7 @@ def read_sheet(path, shown=None, sheet=None, anchor="time", text_columns=("run",
 
 def _open_sheet(path, shown, sheet):
     """(cell values [n_rows, n_columns] as objects, the openpyxl sheet with its
-    formulas, the sheet's name)."""
+    formulas, the sheet as a :class:`SheetPlace`), unreadable cells refused."""
     import warnings
     import zipfile
     from xml.etree import ElementTree
@@ -126,7 +124,8 @@ def _open_sheet(path, shown, sheet):
     try:
         with warnings.catch_warnings():
             warnings.filterwarnings("ignore", category=UserWarning, module="openpyxl")
-            with pd.ExcelFile(path, engine="openpyxl") as book:
+            with pd.ExcelFile(path, engine="openpyxl",
+                              engine_kwargs={"read_only": False}) as book:
                 names = list(book.sheet_names)
                 listing = ", ".join(repr(n) for n in names)
                 if not names:
@@ -141,19 +140,27 @@ def _open_sheet(path, shown, sheet):
                 sheet = names[0] if sheet is None else sheet
                 frame = pd.read_excel(book, sheet_name=sheet, header=None, dtype=object,
                                       na_filter=False)
-            formulas = load_workbook(path, data_only=False)[sheet]
+                cached = book.book[sheet]         # the values pandas read, with their types
+                formulas = load_workbook(path, data_only=False)[sheet]
+                grid = (frame.to_numpy(dtype=object) if frame.size else
+                        np.empty((0, 0), dtype=object))
+                place = SheetPlace(f"{shown}, sheet {sheet!r}")
+                _refuse_unreadable(grid, formulas, cached, place)
     except unreadable as exc:
         raise KinfitError(f"{shown}: not a readable .xlsx workbook ({exc})") from None
-    grid = frame.to_numpy(dtype=object) if frame.size else np.empty((0, 0), dtype=object)
-    return grid, formulas, sheet
+    return grid, formulas, place
 
 
 def _empty(value):
     return value is None or (isinstance(value, str) and not value.strip())
 
 
-def _refuse_unreadable(grid, formulas, place):
-    """Refuse a formula with no saved value and an error value, anywhere on the sheet."""
+def _refuse_unreadable(grid, formulas, cached, place):
+    """Refuse a formula with no saved value and an error value, anywhere on the sheet.
+
+    `cached` is the sheet as read for its values: a formula whose saved value is
+    empty text reads as an empty cell of type ``"str"``; one with no saved
+    value, as an empty cell of another type."""
     from openpyxl.utils import get_column_letter
 
     for row in formulas.iter_rows():
@@ -163,7 +170,8 @@ def _refuse_unreadable(grid, formulas, place):
             letter = get_column_letter(cell.column)
             loc = f"{at(place, cell.row)}, column {letter} (cell {letter}{cell.row})"
             formula = str(getattr(cell.value, "text", cell.value))
-            if cell.data_type == "f" and _empty(value):
+            if cell.data_type == "f" and _empty(value) and \
+                    cached.cell(cell.row, cell.column).data_type != "str":
                 raise KinfitError(f"{loc}: the formula {formula!r} has no saved value (the file "
                                   f"was written by a program that does not compute formulas); "
                                   f"open and save it in a spreadsheet program, or paste the "

@@ -130,22 +130,27 @@ def test_wide_layout_on_a_sheet_with_notes_above_units_and_gaps(tmp_path):
     assert p.sigma is None and exp.sigma(p) == pytest.approx([0.005] * 3)
 
 
-def test_formula_with_its_saved_value_is_read(tmp_path):
+def test_formulas_with_their_saved_values_are_read(tmp_path):
     # openpyxl writes formulas without a saved value; a spreadsheet program stores both
-    # (the <v> element beside <f>, ECMA-376 Part 1, 18.3.1.4 "c (Cell)", from memory)
-    rows = [["time", "A"], [0, 1.0], [10, "=B2*0.6"], [20, 0.37]]
+    # (the <v> element beside <f>, and t="str" for a text result: ECMA-376 Part 1, 18.3.1.4
+    # "c (Cell)", from memory). A formula giving empty text is an empty cell: not measured.
+    rows = [["time", "A", "P"], [0, 1.0, 0.0], [10, "=B2*0.6", "=T(B2)"], [20, 0.37, 0.63]]
     path = save_workbook(tmp_path / "r1.xlsx", {"r1": rows})
+    patches = {b'<c r="B3"><f>B2*0.6</f><v /></c>': b'<c r="B3"><f>B2*0.6</f><v>0.6</v></c>',
+               b'<c r="C3"><f>T(B2)</f><v /></c>': b'<c r="C3" t="str"><f>T(B2)</f><v></v></c>'}
     blob = io.BytesIO()
     with zipfile.ZipFile(path) as src, zipfile.ZipFile(blob, "w") as dst:
         for item in src.infolist():
             data = src.read(item.filename)
             if item.filename == "xl/worksheets/sheet1.xml":
-                assert b"<f>B2*0.6</f><v />" in data
-                data = data.replace(b"<f>B2*0.6</f><v />", b"<f>B2*0.6</f><v>0.6</v>")
+                for old, new in patches.items():
+                    assert old in data
+                    data = data.replace(old, new)
             dst.writestr(item, data)
     path.write_bytes(blob.getvalue())
-    exp = load_experiment(experiment(tmp_path, WIDE, "r1.xlsx"))
-    np.testing.assert_allclose(exp.runs[0].traces[0].values, [1.0, 0.6, 0.37])
+    a, p = load_experiment(experiment(tmp_path, WIDE, "r1.xlsx")).runs[0].traces
+    np.testing.assert_allclose(a.values, [1.0, 0.6, 0.37])
+    np.testing.assert_allclose(p.times, [0, 20])
 
 
 def _cell(ref, value):
