@@ -9,12 +9,12 @@ are. Two data layouts are read (by :mod:`kinfit.inputs.tables`):
 * wide: one CSV per run with a ``time`` column and one column per species,
   and optionally ``sigma_X`` columns (named by the run's ``file``); an empty
   cell means "not measured then".
-
-Either may be a sheet of an .xlsx workbook, named by ``sheet`` (in ``[data]``,
-or on the run). A point's own σ takes precedence over ``[noise]``.
   Wide files are read as instruments write them (see
   :mod:`kinfit.inputs.instrument`: separators, decimal commas, metadata lines, a
   unit in the time header, a ``run`` column for several runs in one file).
+
+Either may be a sheet of an .xlsx workbook, named by ``sheet`` (in ``[data]``,
+or on the run). A point's own σ takes precedence over ``[noise]``.
 
 Spectrometer signals (Beer–Lambert channels and full spectra) are declared
 in a ``[signals]`` table, read by :mod:`kinfit.inputs.signals`; a run's ``spectrum``

@@ -136,8 +136,8 @@ def _joined_sigma(sigma, experiment):
     if not sigma or all(s is None for s in sigma):
         return None
     if any(s is None for s in sigma):
-        missing = [(run, t) for run in experiment.runs for t in run.traces
-                   if experiment.sigma(t) is None][0]
+        missing = next((run, t) for run in experiment.runs for t in run.traces
+                       if experiment.sigma(t) is None)
         raise KinfitError(f"{experiment.source}: {missing[1].species} in run "
                           f"{missing[0].name!r} has no σ while other traces have one; give "
                           f"every trace its σ column or declare [noise]")

@@ -324,3 +324,15 @@ def test_a_damaged_workbook_gives_a_table_or_a_kinfit_error(tmp_path_factory, ac
         assert str(exc).startswith("r1.xlsx")
     else:   # a part the values do not need (styles, properties) may go missing
         np.testing.assert_array_equal(table.numbers(0)[0], [0, 10, 20, 30])
+
+
+@pytest.mark.parametrize("template, message", [
+    (WIDE.replace('file = "{file}"\n{sheet}\n', 'sheet = "r1"\n'),
+     r"experiment\.toml, line 6 \(run 'r1'\) \(sheet\): expected the name of a sheet of the "
+     r"run's file"),
+    (LONG.replace("{sheet}", "sheet = 3"), r"expected \[data\] with file = .* and sheet = "),
+])
+def test_sheet_keys_that_cannot_be_placed_are_refused(tmp_path, template, message):
+    save_workbook(tmp_path / "data.xlsx", {"traces": long_rows()})
+    with pytest.raises(KinfitError, match=message):
+        load_experiment(experiment(tmp_path, template, "data.xlsx"))

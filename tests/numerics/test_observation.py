@@ -119,7 +119,7 @@ def test_sigma_column_fit_matches_curve_fit_with_absolute_sigma(files):
 def test_posterior_sampling_uses_each_points_own_sigma(files):
     from kinfit.estimation.posterior import sample
 
-    exp_path, model, t, y, sigma = _decay_study(files)
+    exp_path, model, t, _, sigma = _decay_study(files)
     exp = load_experiment(exp_path)
     post = sample(exp, load_mechanism(model), walkers=16, steps=600, seed=5, starts=2,
                   profile=False)
