@@ -311,7 +311,7 @@ def initial_rates(experiment, reaction, max_conversion=DEFAULT_MAX_CONVERSION,
     if not isinstance(degree, int) or degree < 1:
         raise KinfitError(f"degree must be a whole number of at least 1, got {degree!r}")
     text, stoich, held = _reaction(reaction)
-    sigma_of = experiment.sigma if experiment.noise is not None else None
+    sigma_of = experiment.sigma if experiment.sigma_known else None
     rates = tuple(run_initial_rate(run, stoich, sigma_of, max_conversion, degree, held)
                   for run in experiment.runs)
     units = experiment.units

@@ -64,6 +64,7 @@ from kinfit.estimation.sampler import (
 )
 from kinfit.estimation.space import parameter_space
 from kinfit.inputs.parameters import Role
+from kinfit.numerics.observation import sigma_at
 
 if TYPE_CHECKING:
     from kinfit.estimation.diagnostics import Diagnostics
@@ -377,7 +378,7 @@ def _bands(space: ParameterSpace, samples_u, rng, n_draws=_BAND_DRAWS, n_grid=20
         noisy = curves.copy()
         for j, s in enumerate(measured):
             if space.noise == "declared":
-                sd = exp.noise[s].sigma(curves[:, :, j])
+                sd = sigma_at(exp, r, s, grids[r], curves[:, :, j])
             else:
                 g = 0 if space.noise == "shared" else space.noise_groups.index(s)
                 sd = sigma_draws[ok][:, g][:, None]

@@ -4,13 +4,17 @@ An experiment file (TOML) names the units, the runs with their starting
 concentrations (and temperatures), the measurement noise and where the data
 are. Two data layouts are read (by :mod:`kinfit.inputs.tables`):
 
-* long: one CSV with columns ``run,time,species,value`` for all runs
-  (named by ``[data] file``);
-* wide: one CSV per run with a ``time`` column and one column per species
-  (named by the run's ``file``); an empty cell means "not measured then".
+* long: one CSV with columns ``run,time,species,value`` (and optionally
+  ``sigma``) for all runs (named by ``[data] file``);
+* wide: one CSV per run with a ``time`` column and one column per species,
+  and optionally ``sigma_X`` columns (named by the run's ``file``); an empty
+  cell means "not measured then".
   Wide files are read as instruments write them (see
   :mod:`kinfit.inputs.instrument`: separators, decimal commas, metadata lines, a
   unit in the time header, a ``run`` column for several runs in one file).
+
+Either may be a sheet of an .xlsx workbook, named by ``sheet`` (in ``[data]``,
+or on the run). A point's own σ takes precedence over ``[noise]``.
 
 Spectrometer signals (Beer–Lambert channels and full spectra) are declared
 in a ``[signals]`` table, read by :mod:`kinfit.inputs.signals`; a run's ``spectrum``
@@ -40,7 +44,7 @@ from kinfit.core.units import Units, parse_units, read_quantity, to_kelvin
 from kinfit.inputs.parameters import Parameter, Role
 from kinfit.inputs.signals import parse_path_length, parse_signals, read_spectrum
 from kinfit.inputs.sources import find_line, load_toml, resolve_file
-from kinfit.inputs.tables import Trace, read_long, read_wide
+from kinfit.inputs.tables import Trace, check_own_sigma, read_long, read_wide
 from kinfit.inputs.temperature import PLAUSIBLE_KELVIN
 
 if TYPE_CHECKING:
@@ -54,7 +58,7 @@ MIN_POINTS = 3
 _EXPERIMENT_KEYS = {"name", "description", "units", "data", "noise", "runs", "temperature",
                     "signals"}
 _RUN_KEYS = {"name", "temperature", "initial", "file", "time_offset", "path_length", "start",
-             "spectrum"}
+             "spectrum", "sheet"}
 
 
 @dataclass(frozen=True)
@@ -152,7 +156,8 @@ class Experiment:
     noise : dict of str to Noise, or None
         Declared noise per species; ``None`` when not declared, in which case
         one unknown noise level shared by all points is estimated from the fit
-        (ordinary least squares).
+        (ordinary least squares), unless every point has its own σ (a σ
+        column, :attr:`Trace.sigma`, which takes precedence over `noise`).
     source : str
         The experiment file.
     signals : SignalSpec or None
@@ -183,10 +188,18 @@ class Experiment:
         return tuple(seen)
 
     def sigma(self, trace):
-        """Declared σ of each point of `trace` [n], or ``None`` if noise is unknown."""
+        """σ of each point of `trace` [n]: its own (a σ column), else the declared
+        noise; ``None`` if neither is known."""
+        if trace.sigma is not None:
+            return trace.sigma
         if self.noise is None:
             return None
         return self.noise[trace.species].sigma(trace.values)
+
+    @property
+    def sigma_known(self):
+        """Whether every point has a σ, declared or its own."""
+        return all(self.sigma(t) is not None for run in self.runs for t in run.traces)
 
     def run(self, name):
         for r in self.runs:
@@ -291,23 +304,25 @@ def _read_data(table, text, source, folder, specs, units, signals):
     names = {s["name"] for s in specs}
     data = table.get("data")
     if data is not None:
-        if not isinstance(data, dict) or set(data) - {"file"} or "file" not in data:
+        if not isinstance(data, dict) or set(data) - {"file", "sheet"} or "file" not in data \
+                or not isinstance(data.get("sheet", ""), str):
             raise KinfitError(f"{where(source, find_line(text, None, 'data'))}: expected "
                               f"[data] with file = \"traces.csv\" (columns run,time,species,"
-                              f"value)")
+                              f"value and optionally sigma), and sheet = \"...\" for a "
+                              f"workbook")
         data_path = resolve_file(data["file"], "data file", folder,
                                  where(source, find_line(text, "file", "data"), "data.file"))
         files.append(str(data_path))
         traces.update(read_long(data_path, data["file"], names,
                                 {s["name"] for s in specs if s["file"]},
-                                {s["name"]: s["start"] for s in specs}))
+                                {s["name"]: s["start"] for s in specs}, data.get("sheet")))
     channels = set(signals.channels) if signals is not None else set()
     for spec in specs:
         if spec["file"]:
             run_path = resolve_file(spec["file"], "data file", folder, spec["where"])
             files.append(str(run_path))
             traces[spec["name"]] = read_wide(run_path, spec["file"], units, channels,
-                                             spec["name"], spec["start"])
+                                             spec["name"], spec["start"], spec["sheet"])
         if spec["spectrum"]:
             if signals is None or signals.spectra is None:
                 raise KinfitError(f"{spec['where']}: run {spec['name']!r} gives a spectrum "
@@ -363,6 +378,9 @@ def _parse_run(index, raw, text, source, units, default_temperature):
     file = raw.get("file")
     if file is not None and not isinstance(file, str):
         raise KinfitError(f"{loc} (file): expected a file name")
+    sheet = raw.get("sheet")
+    if sheet is not None and (not isinstance(sheet, str) or file is None):
+        raise KinfitError(f"{loc} (sheet): expected the name of a sheet of the run's file")
     spectrum = raw.get("spectrum")
     if spectrum is not None and not isinstance(spectrum, str):
         raise KinfitError(f"{loc} (spectrum): expected a file name")
@@ -374,7 +392,7 @@ def _parse_run(index, raw, text, source, units, default_temperature):
                               or not math.isfinite(start)):
         raise KinfitError(f"{loc} (start): expected a time in {units.time}, got {start!r}")
     return dict(name=name, where=loc, temperature=temperature, initial=initial, fitted=fitted,
-                offset=offset, file=file, source=file or spectrum, spectrum=spectrum,
+                offset=offset, file=file, sheet=sheet, source=file or spectrum, spectrum=spectrum,
                 path_length=path_length, start=None if start is None else float(start))
 
 
@@ -504,6 +522,7 @@ def _fitted(pname, spec, loc, role, lower=-math.inf):
 
 def _parse_noise(raw, text, source, experiment):
     if raw is None:
+        check_own_sigma(experiment.runs, None, source)
         return None
     loc = where(source, find_line(text, None, "noise"), "noise")
     if not isinstance(raw, dict) or not raw:
@@ -526,10 +545,11 @@ def _parse_noise(raw, text, source, experiment):
         if values["absolute"] == 0 and values["relative"] == 0:
             raise KinfitError(f"{kloc}: the noise cannot be zero")
         noise[key] = Noise(**values)
+    check_own_sigma(experiment.runs, list(noise), source)
     default = noise.pop("default", None)
     out = {}
     for run in experiment.runs:
-        for trace in run.traces:
+        for trace in (t for t in run.traces if t.sigma is None):   # own σ takes precedence
             spec = noise.get(trace.species, default)
             if spec is None:
                 raise KinfitError(f"{loc}: no noise is declared for {trace.species!r}; add "

@@ -20,6 +20,10 @@ accepts, and says so when it meets something else:
 Text after the table, rows of a different width and cells that are not
 numbers are refused with the file, the line and what was expected: a table
 that cannot be placed is never read by guesswork.
+
+The same table may sit on a sheet of an .xlsx workbook, read by
+:mod:`kinfit.inputs.workbook` into the same :class:`Table` (its lines are the
+sheet's rows, its source a :class:`SheetPlace`).
 """
 
 from __future__ import annotations
@@ -35,8 +39,8 @@ import numpy as np
 from kinfit.core.errors import KinfitError
 from kinfit.inputs.sources import decode
 
-__all__ = ["Table", "read_table", "table_from_text", "split_unit", "check_times",
-           "SEPARATORS", "MAX_MAGNITUDE"]
+__all__ = ["Table", "read_table", "table_from_text", "split_unit", "header_names",
+           "check_times", "at", "line_word", "SheetPlace", "SEPARATORS", "MAX_MAGNITUDE"]
 
 MAX_MAGNITUDE = 1e100   # larger times or values are typing errors, not measurements
 
@@ -67,7 +71,7 @@ class Table:
         Line of each row in the file (1-based).
     header_line : int
     separator : str
-        ``","``, ``";"`` or ``"\\t"``.
+        ``","``, ``";"`` or ``"\\t"`` (empty for a sheet of a workbook).
     decimal : str
         ``"."`` or ``","``.
     skipped : int
@@ -137,28 +141,28 @@ def _to_floats(cells, lines, decimal, shown, label, allow_blank):
     for i, cell in enumerate(cells):
         if cell == "":
             if not allow_blank:
-                raise KinfitError(f"{shown}, line {lines[i]}: {label} is missing")
+                raise KinfitError(f"{at(shown, lines[i])}: {label} is missing")
             blank[i] = True
             continue
         if pattern.match(cell):
             values[i] = float(cell.replace(",", ".")) if decimal == "," else float(cell)
             if not np.isfinite(values[i]):
-                raise KinfitError(f"{shown}, line {lines[i]}: {label} {cell!r} is not a finite "
+                raise KinfitError(f"{at(shown, lines[i])}: {label} {cell!r} is not a finite "
                                   f"number")
             if abs(values[i]) > MAX_MAGNITUDE:
-                raise KinfitError(f"{shown}, line {lines[i]}: {label} {values[i]:g} is "
+                raise KinfitError(f"{at(shown, lines[i])}: {label} {values[i]:g} is "
                                   f"implausibly large (beyond ±{MAX_MAGNITUDE:g}); is a unit or "
                                   f"an exponent wrong?")
             continue
         if cell.lower() in _NOT_NUMBERS:
-            raise KinfitError(f"{shown}, line {lines[i]}: {label} is {cell!r}; expected a "
+            raise KinfitError(f"{at(shown, lines[i])}: {label} is {cell!r}; expected a "
                               f"number (leave the cell empty if nothing was measured)")
         hint = ""
         if decimal == "." and _HAS_COMMA_DECIMAL.match(cell):
             hint = " (a decimal comma needs semicolons or tabs between fields)"
         elif cell.lower() == label.lower():
             hint = " (is the header repeated here?)"
-        raise KinfitError(f"{shown}, line {lines[i]}: {label} {cell!r} is not a number{hint}")
+        raise KinfitError(f"{at(shown, lines[i])}: {label} {cell!r} is not a number{hint}")
     return values, blank
 
 
@@ -317,19 +321,28 @@ def _read_rows(lines, header_index, header, separator, shown):
         numbers.append(n + 1)
     if not cells:
         raise KinfitError(f"{shown}: the data file has a header but no data rows")
-    names, units = [], []
-    for i, cell in enumerate(header):
-        name, unit = split_unit(cell)
-        if not name or name.lower() in [x.lower() for x in names]:
-            raise KinfitError(f"{shown}, line {header_index + 1}: column {i + 1} has an empty "
-                              f"or repeated name {cell!r}")
-        names.append(name)
-        units.append(unit)
+    names, units = header_names(header, shown, header_index + 1)
     decimal = _decimal(cells, numbers, separator, shown)
     return Table(names=tuple(names), units=tuple(units), cells=tuple(cells),
                  lines=np.array(numbers), header_line=header_index + 1, separator=separator,
                  decimal=decimal, skipped=sum(1 for line in lines[:header_index] if line.strip()),
                  source=str(shown))
+
+
+def header_names(header, shown, header_line, columns=None):
+    """Column names and units of a header; refuses empty and repeated names.
+
+    `columns` names each column in messages (default: its number)."""
+    names, units = [], []
+    for i, cell in enumerate(header):
+        name, unit = split_unit(cell)
+        if not name or name.lower() in [x.lower() for x in names]:
+            column = columns[i] if columns else i + 1
+            raise KinfitError(f"{at(shown, header_line)}: column {column} has an empty "
+                              f"or repeated name {cell!r}")
+        names.append(name)
+        units.append(unit)
+    return names, units
 
 
 def _decimal(cells, lines, separator, shown):
@@ -386,15 +399,33 @@ def check_times(times, lines, shown, what=None, hint=""):
     about = f" ({what})" if what else ""
     if times.size and times.min() < 0:
         i = int(np.flatnonzero(times < 0)[0])
-        raise KinfitError(f"{shown}, line {lines[i]}: negative time {times[i]:g}{about}; "
+        raise KinfitError(f"{at(shown, lines[i])}: negative time {times[i]:g}{about}; "
                           f"times are measured from the start of the reaction{hint}")
     steps = np.diff(times)
     if (steps <= 0).any():
         i = int(np.flatnonzero(steps <= 0)[0]) + 1
         if steps[i - 1] == 0:
             also = f"{what}, also" if what else "also"
-            raise KinfitError(f"{shown}, line {lines[i]}: time {times[i]:g} is repeated "
-                              f"({also} at line {lines[i - 1]})")
+            raise KinfitError(f"{at(shown, lines[i])}: time {times[i]:g} is repeated "
+                              f"({also} at {line_word(shown)} {lines[i - 1]})")
         trace = f"{what}: " if what else ""
-        raise KinfitError(f"{shown}, line {lines[i]}: time is not increasing ({trace}"
+        raise KinfitError(f"{at(shown, lines[i])}: time is not increasing ({trace}"
                           f"t={times[i]:g} after t={times[i - 1]:g})")
+
+
+# ------------------------------------------------------------ places in files
+
+class SheetPlace(str):
+    """A worksheet as named in messages, ``"book.xlsx, sheet 'r1'"``: its lines are rows."""
+
+
+def line_word(shown):
+    """``"row"`` on a worksheet, else ``"line"``."""
+    return "row" if isinstance(shown, SheetPlace) else "line"
+
+
+def at(shown, line):
+    """Where a line of a data file is: ``"data.csv, line 7"``, or
+    ``"book.xlsx, sheet 'r1', row 7"`` on a worksheet (a :class:`SheetPlace`)."""
+    return f"{shown}, {line_word(shown)} {line}"
+

@@ -8,6 +8,12 @@ vector of data points and remembers, for each point, its run, its time on
 that run's grid and its species; :func:`observe` picks the model's values at
 those places. The same order of points is used for residuals, Jacobians and
 plots.
+
+Each point's σ is its own when the data file gives one (a σ column), else
+the declared ``[noise]`` model at its value (``Experiment.sigma``); the
+residual problem divides by it, so the fit, its standard errors (not
+rescaled), the likelihood, the posterior and the residual checks all use it.
+:func:`sigma_at` gives the same σ at other times, for predictive bands.
 """
 
 from __future__ import annotations
@@ -18,7 +24,7 @@ import numpy as np
 
 from kinfit.core.errors import KinfitError
 
-__all__ = ["Observation", "build_observation", "observe", "check_compatible"]
+__all__ = ["Observation", "build_observation", "observe", "check_compatible", "sigma_at"]
 
 
 @dataclass(frozen=True)
@@ -38,7 +44,8 @@ class Observation:
     values : ndarray [n_points]
         Measured values.
     sigma : ndarray [n_points] or None
-        Declared standard deviations, or ``None`` when unknown.
+        Each point's standard deviation (its own, else the declared noise), or
+        ``None`` when unknown.
     traces : tuple of (run index, species, slice)
         Each trace's place in the flat vector.
     """
@@ -76,7 +83,8 @@ def check_compatible(mechanism, experiment):
                 raise KinfitError(
                     f"{run.source}, line {trace.lines[0]}: species {trace.species!r} (run "
                     f"{run.name!r}) is not in the model '{mechanism.name}' ({mechanism.source});"
-                    f" its species are {listing}")
+                    f" its species are {listing} (every data column besides time and run "
+                    f"is a species, a [signals] channel or sigma_X, the σ of column X)")
         for name in list(run.initial) + list(run.fitted_initial):
             if name not in species:
                 raise KinfitError(
@@ -110,9 +118,7 @@ def build_observation(mechanism, experiment):
             time_index.append(np.searchsorted(grid, trace.times))
             species_index.append(np.full(n, index.get(trace.species, -1)))
             values.append(trace.values)
-            s = experiment.sigma(trace)
-            if s is not None:
-                sigma.append(s)
+            sigma.append(experiment.sigma(trace))
             traces.append((r, trace.species, slice(start, start + n)))
             start += n
         run_slices.append(slice(run_start, start))
@@ -122,7 +128,45 @@ def build_observation(mechanism, experiment):
         time_index=np.concatenate(time_index or empty),
         species_index=np.concatenate(species_index or empty),
         values=np.concatenate(values or [np.empty(0)]),
-        sigma=np.concatenate(sigma) if sigma else None, traces=tuple(traces))
+        sigma=_joined_sigma(sigma, experiment), traces=tuple(traces))
+
+
+def _joined_sigma(sigma, experiment):
+    """Every point's σ [n_points], or None; refuses σ for some traces only."""
+    if not sigma or all(s is None for s in sigma):
+        return None
+    if any(s is None for s in sigma):
+        missing = next((run, t) for run in experiment.runs for t in run.traces
+                       if experiment.sigma(t) is None)
+        raise KinfitError(f"{experiment.source}: {missing[1].species} in run "
+                          f"{missing[0].name!r} has no σ while other traces have one; give "
+                          f"every trace its σ column or declare [noise]")
+    return np.concatenate(sigma)
+
+
+def sigma_at(experiment, run_index, species, times, values):
+    """σ of readings of `species` in one run at other `times`, for predictive bands.
+
+    Parameters
+    ----------
+    experiment : Experiment
+    run_index : int
+    species : str
+    times : ndarray [n_times]
+    values : ndarray [..., n_times]
+        Predicted concentrations at `times`.
+
+    Returns
+    -------
+    ndarray broadcastable to `values`
+        A trace's own σ interpolated linearly in time between its readings
+        (held at its first and last); otherwise the declared noise at `values`.
+    """
+    run = experiment.runs[run_index]
+    trace = next(t for t in run.traces if t.species == species)
+    if trace.sigma is not None:
+        return np.interp(times, trace.times, trace.sigma)
+    return experiment.noise[species].sigma(values)
 
 
 def observe(conc_by_run, observation):

@@ -204,7 +204,7 @@ def _check_noise(experiment, measured):
         raise KinfitError(f"{experiment.source} (signals.spectra): no run gives a spectrum "
                           f"file; add spectrum = \"run1_spectra.csv\" to the runs")
     n_traces = len(measured.traces)
-    declared = experiment.noise is not None
+    declared = experiment.sigma_known
     if has_spectra and n_traces and (spec.spectra.noise is not None) != declared:
         raise KinfitError(
             f"{experiment.source}: noise is declared for "

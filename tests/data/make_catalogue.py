@@ -199,6 +199,93 @@ case("signal_channel_for_unknown_species", message=r"signals.*'Z'|'Z'.*signals|s
             "[signals.channels]\nA480 = { Z = \"unknown\" }\n",
             "r1.csv": "time,A480\n0,1.0\n10,0.6\n20,0.37\n30,0.22\n"})
 
+# --- each point's own σ, and columns kinfit does not know
+SIGMA_TRACES = ("run,time,species,value,sigma\nr1,0,A,1.0,0.01\nr1,10,A,0.61,0.01\n"
+                "r1,20,A,0.37,0.02\nr1,30,A,0.22,0.02\n")
+case("sigma_column_weights_the_fit", exit=0, files={"traces.csv": SIGMA_TRACES})
+case("sigma_not_positive", message=r"traces\.csv, line 4: sigma 0 is not positive",
+     files={"traces.csv": SIGMA_TRACES.replace("0.37,0.02", "0.37,0")})
+case("sigma_blank_for_some_readings", message=r"traces\.csv, line 3: sigma is empty for A, but "
+                                               r"line 2 gives one",
+     files={"traces.csv": SIGMA_TRACES.replace("0.61,0.01", "0.61,")})
+case("sigma_overrides_declared_noise", exit=0,
+     warning=r"noise\.default is not used: every trace has its own σ column",
+     files={"traces.csv": SIGMA_TRACES,
+            "experiment.toml": EXPERIMENT + "[noise]\ndefault = { absolute = 0.5 }\n"})
+case("unknown_column_in_long_layout", message=r"traces\.csv, line 1: unknown column 'stdev'; "
+                                              r"the long layout has",
+     files={"traces.csv": SIGMA_TRACES.replace(",sigma", ",stdev")})
+case("wide_sigma_column_names_no_column",
+     message=r"r1\.csv, line 1: column 'sigma_B' holds the σ of a column 'B', but the table "
+             r"has none",
+     files={"experiment.toml": WIDE_EXPERIMENT,
+            "r1.csv": "time,A,sigma_B\n0,1.0,0.01\n10,0.6,0.01\n20,0.37,0.01\n"})
+case("wide_unknown_column", message=r"r1\.csv, line 2: species 'remarks' \(run 'r1'\) is not "
+                                    r"in the model",
+     files={"experiment.toml": WIDE_EXPERIMENT,
+            "r1.csv": "time,A,remarks\n0,1.0,1\n10,0.6,2\n20,0.37,3\n"})
+
+# --- workbooks (.xlsx, written by openpyxl with fixed dates so that the bytes repeat)
+WORKBOOK_EXPERIMENT = sub(EXPERIMENT, 'file = "traces.csv"',
+                          'file = "traces.xlsx"\nsheet = "traces"')
+WORKBOOK_ROWS = [["run", "time", "species", "value"], ["r1", 0, "A", 1.0],
+                 ["r1", 10, "A", 0.61], ["r1", 20, "A", 0.37], ["r1", 30, "A", 0.22]]
+
+
+def workbook(rows, edit=None, sheet="traces"):
+    """The bytes of a one-sheet .xlsx workbook holding `rows`, the same on every run."""
+    import io
+    import re
+    import zipfile
+
+    import openpyxl
+
+    book = openpyxl.Workbook()
+    book.active.title = sheet
+    for row in rows:
+        book.active.append(row)
+    if edit is not None:
+        edit(book.active)
+    raw, out = io.BytesIO(), io.BytesIO()
+    book.save(raw)
+    with zipfile.ZipFile(raw) as src, zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as dst:
+        for item in src.infolist():
+            data = src.read(item.filename)
+            if item.filename == "docProps/core.xml":
+                data = re.sub(rb"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\dZ", b"2020-01-01T00:00:00Z", data)
+            dst.writestr(zipfile.ZipInfo(item.filename, date_time=(2020, 1, 1, 0, 0, 0)), data,
+                         compress_type=zipfile.ZIP_DEFLATED)
+    return out.getvalue()
+
+
+def _set(ref, value):
+    def edit(sheet):
+        sheet[ref] = value
+    return edit
+
+
+case("workbook_long_layout", exit=0, files={"experiment.toml": WORKBOOK_EXPERIMENT},
+     binary={"traces.xlsx": workbook(WORKBOOK_ROWS)})
+case("workbook_formula_without_saved_value",
+     message=r"traces\.xlsx, sheet 'traces', row 3, column D \(cell D3\): the formula "
+             r"'=D2\*0\.61' has no saved value",
+     files={"experiment.toml": WORKBOOK_EXPERIMENT},
+     binary={"traces.xlsx": workbook(WORKBOOK_ROWS, _set("D3", "=D2*0.61"))})
+case("workbook_merged_cells", message=r"sheet 'traces', row 4: cells C4:D4 are merged",
+     files={"experiment.toml": WORKBOOK_EXPERIMENT},
+     binary={"traces.xlsx": workbook(WORKBOOK_ROWS, lambda s: s.merge_cells("C4:D4"))})
+case("workbook_text_in_number_column",
+     message=r"sheet 'traces', row 5, column D \('value'\): holds the text '< 0\.3', not a "
+             r"number",
+     files={"experiment.toml": WORKBOOK_EXPERIMENT},
+     binary={"traces.xlsx": workbook(WORKBOOK_ROWS, _set("D5", "< 0.3"))})
+case("workbook_missing_sheet", message=r"traces\.xlsx: no sheet 'traces'; the workbook has "
+                                       r"'Sheet1'",
+     files={"experiment.toml": WORKBOOK_EXPERIMENT},
+     binary={"traces.xlsx": workbook(WORKBOOK_ROWS, sheet="Sheet1")})
+case("workbook_that_is_text", message=r"traces\.xlsx: not a readable \.xlsx workbook",
+     files={"experiment.toml": WORKBOOK_EXPERIMENT, "traces.xlsx": TRACES})
+
 # --- experiments
 case("negative_initial_concentration", message=r"initial\.A\): a concentration cannot be "
                                                r"negative",

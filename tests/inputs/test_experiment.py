@@ -318,26 +318,3 @@ def test_any_experiment_text_gives_an_experiment_or_a_kinfit_error(files, text):
         load_experiment(files.folder / "experiment.toml")
     except KinfitError:
         pass
-
-
-@settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow,
-                                                                   HealthCheck.function_scoped_fixture])
-@given(st.lists(st.tuples(st.sampled_from(["r1", "r2"]), st.floats(0, 1e6),
-                          st.sampled_from(["A", "P"]), st.floats(-1e3, 1e3)),
-                min_size=1, max_size=30),
-       st.sampled_from(["run,time,species,value", "Run,Time,Species,Value",
-                        "value,species,time,run,note"]))
-def test_fast_and_careful_long_readers_agree(tmp_path_factory, rows, header):
-    # The fast numeric reader must return exactly what the careful reader does.
-    from kinfit.inputs.tables import careful_long, fast_long
-
-    cols = [c.lower() for c in header.split(",")]
-    lines = [header] + [",".join({"run": r, "time": repr(t), "species": s, "value": repr(v),
-                                  "note": "x"}[c] for c in cols) for r, t, s, v in rows]
-    path = tmp_path_factory.mktemp("fast") / "t.csv"
-    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
-    fast = fast_long(path)
-    careful = careful_long(path, "t.csv")
-    assert fast is not None
-    for a, b in zip(fast, careful):
-        np.testing.assert_array_equal(a, b)

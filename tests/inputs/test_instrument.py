@@ -8,7 +8,15 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from kinfit.core.errors import KinfitError
-from kinfit.inputs.instrument import read_table, split_unit, table_from_text
+from kinfit.inputs.instrument import (
+    SheetPlace,
+    at,
+    check_times,
+    header_names,
+    read_table,
+    split_unit,
+    table_from_text,
+)
 
 
 def test_semicolons_decimal_commas_metadata_and_a_time_unit():
@@ -135,3 +143,23 @@ def test_any_bytes_give_a_table_or_a_kinfit_error(tmp_path_factory, blob):
         read_table(path, "blob.csv")
     except KinfitError:
         pass
+
+
+def test_places_in_a_sheet_are_rows_and_in_a_file_lines():
+    sheet = SheetPlace("book.xlsx, sheet 'r1'")
+    assert at("data.csv", 7) == "data.csv, line 7"
+    assert at(sheet, 7) == "book.xlsx, sheet 'r1', row 7"
+    with pytest.raises(KinfitError, match=r"^book\.xlsx, sheet 'r1', row 5: time 3 is repeated "
+                                          r"\(also at row 4\)$"):
+        check_times(np.array([1.0, 3.0, 3.0]), np.array([3, 4, 5]), sheet)
+    with pytest.raises(KinfitError, match=r"^data\.csv, line 5: time is not increasing"):
+        check_times(np.array([1.0, 3.0, 2.0]), np.array([3, 4, 5]), "data.csv")
+
+
+def test_header_names_split_units_and_refuse_repeats_naming_the_column():
+    assert header_names(["Time (min)", "A [mM]", "sigma_A (mM)"], "w.csv", 1) == (
+        ["Time", "A", "sigma_A"], ["min", "mM", "mM"])
+    with pytest.raises(KinfitError, match=r"sheet 's', row 3: column D has an empty or repeated "
+                                          r"name 'a \(mM\)'"):
+        header_names(["time", "A", "P", "a (mM)"], SheetPlace("b.xlsx, sheet 's'"), 3,
+                     ["A", "B", "C", "D"])

@@ -56,7 +56,7 @@ def test_catalogue_case(tmp_path, name):
         assert len(errors) == 1, output
         assert re.search(expected["message"], errors[0]), errors[0]
         # the message names a file (and usually its line or field)
-        assert re.search(r"\.(toml|csv)\b|\bunit\b", errors[0]), errors[0]
+        assert re.search(r"\.(toml|csv|xlsx)\b|\bunit\b", errors[0]), errors[0]
         assert [p.name for p in out.iterdir()] == ["result.json"]
         assert (out / "result.json").read_text() == "previous result\n"
     else:
