@@ -44,7 +44,8 @@ def plot_spectra(spectra, fig=None):
                             color=color, alpha=0.2, lw=0)
     ax.axhline(0.0, color="0.5", lw=0.6)
     ax.set_xlabel(f"wavelength ({spectra.wavelength_unit})")
-    ax.set_ylabel(f"absorptivity ({spectra.unit})" if spectra.unit else "absorptivity")
+    ax.set_ylabel(f"absorptivity ({unit_text(spectra.unit)})" if spectra.unit
+                  else "absorptivity")
     ax.set_title("resolved spectra (bands: ±2 standard errors)", fontsize=10)
     ax.legend(fontsize=8, frameon=False)
     return fig

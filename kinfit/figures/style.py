@@ -134,8 +134,8 @@ def axis_label(name, unit, scale=0):
 
 
 def decade(values):
-    """The power of ten e that brings `values` to between 0.1 and 1000 (0 when they
-    already are, or are all zero)."""
+    """The power of ten e to divide `values` by when their largest magnitude is below
+    0.001 or from 10000 up (1 ≤ |value| / 10^e < 10); else 0, as for all zeros."""
     import numpy as np
 
     finite = np.abs(np.asarray(values, dtype=float))
@@ -143,7 +143,7 @@ def decade(values):
     if finite.size == 0:
         return 0
     e = math.floor(math.log10(float(np.max(finite))))
-    return e if e < -1 or e > 3 else 0
+    return e if e <= -3 or e >= 4 else 0
 
 
 def plain_ticks(ax, axis="both"):
