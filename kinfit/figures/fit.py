@@ -12,7 +12,13 @@ import numpy as np
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
-from kinfit.figures.style import legend_once, panel_grid, run_title, species_styles, unit_text
+from kinfit.figures.style import (
+    legend_once,
+    panel_grid,
+    run_title,
+    species_styles,
+    unit_text,
+)
 
 __all__ = ["plot_traces", "plot_residuals", "plot_trajectory"]
 

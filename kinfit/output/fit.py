@@ -18,7 +18,13 @@ from kinfit.core.formatting import format_interval, format_value, interval_quant
 from kinfit.core.schema import schema_json
 from kinfit.core.units import format_power
 from kinfit.output.bundle import Bundle, figure_files, write_bundle
-from kinfit.output.text import closing_lines, csv_text, kelvin_celsius, text_table, wrapped
+from kinfit.output.text import (
+    closing_lines,
+    csv_text,
+    kelvin_celsius,
+    text_table,
+    wrapped,
+)
 
 __all__ = ["format_fit", "statistics_text", "interval_text_of", "curves_csv", "parameters_csv",
            "points_csv", "fit_bundle", "write_fit"]

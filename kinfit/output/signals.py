@@ -97,10 +97,11 @@ def _spectra_lines(spectra, wavelengths):
                                                       *spectra.species))]
     if spectra.sigma is None:
         fit_text = (f"χ² = {spectra.residual_sum:.6g} over {spectra.n_points} readings "
-                    f"(χ²/N = {spectra.residual_sum / spectra.n_points:.3g})")
+                    f"(weighted by the declared noise; χ²/N = "
+                    f"{spectra.residual_sum / spectra.n_points:.3g})")
     else:
-        fit_text = (f"Σ residual² = {spectra.residual_sum:.6g} over {spectra.n_points} "
-                    f"readings, σ̂ = {spectra.sigma:.3g}")
+        fit_text = (f"residual sum of squares = {spectra.residual_sum:.6g} over "
+                    f"{spectra.n_points} readings (unweighted), σ̂ = {spectra.sigma:.3g}")
     out.append(f"  full data at the fitted values: {fit_text}")
     return out
 

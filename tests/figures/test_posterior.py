@@ -50,7 +50,7 @@ def test_plot_profiles(line_posterior):
     assert [a.get_title() for a in axes] == ["k", "A0_r1"]
     ax = axes[0]
     assert ax.get_ylabel() == "Δ deviance"
-    curve, points, parabola = ax.lines[:3]
+    curve, points = ax.lines[:2]
     # a smooth curve through the computed points (it passes through each of them)
     profile = post.profiles.parameters["k"]
     assert len(curve.get_xdata()) == 200 and len(points.get_xdata()) == len(profile.values)

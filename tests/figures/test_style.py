@@ -20,7 +20,7 @@ from kinfit.figures.style import (
 
 @pytest.mark.parametrize("n", range(1, 14))
 def test_panel_grid_leaves_no_empty_slot(n):
-    fig, axes, spare = panel_grid(None, n)
+    _, axes, spare = panel_grid(None, n)
     rows, cols = grid_shape(n)
     assert len(axes) == n and cols <= 3
     cells = [ax.get_subplotspec() for ax in axes + ([spare] if spare is not None else [])]
