@@ -220,8 +220,9 @@ def fit_bundle(result, extra=None, extra_summary=None, provenance=None):
     Files, in order: ``fit.png``/``fit.svg`` (data and fitted curves),
     ``residuals.png``/``.svg``, the `extra` files, ``provenance.json``
     (when given), ``summary.txt``, ``fitted_curves.csv``, ``parameters.csv``
-    (:func:`parameters_csv`), ``points.csv`` (:func:`points_csv`) and
-    ``result.json`` (schema ``kinfit.result/1``: :meth:`FitResult.to_dict`).
+    (:func:`parameters_csv`), ``points.csv`` (:func:`points_csv`; left out when
+    every run is full spectra, whose residuals are in ``residual_map_*.csv``)
+    and ``result.json`` (schema ``kinfit.result/1``: :meth:`FitResult.to_dict`).
 
     Parameters
     ----------
@@ -247,9 +248,11 @@ def fit_bundle(result, extra=None, extra_summary=None, provenance=None):
     summary = format_fit(result)
     if extra_summary:
         summary += "\n\n" + extra_summary
-    return files | {"summary.txt": summary + "\n", "fitted_curves.csv": curves_csv(result),
-                    "parameters.csv": parameters_csv(result), "points.csv": points_csv(result),
-                    "result.json": schema_json("result", result.to_dict())}
+    files = files | {"summary.txt": summary + "\n", "fitted_curves.csv": curves_csv(result),
+                     "parameters.csv": parameters_csv(result)}
+    if any(run.traces for run in result.experiment.runs):
+        files = files | {"points.csv": points_csv(result)}
+    return files | {"result.json": schema_json("result", result.to_dict())}
 
 
 def write_fit(out_dir, result, extra_files=None, extra_summary=None, provenance=None):

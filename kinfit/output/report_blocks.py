@@ -83,7 +83,13 @@ def text_block(kind, text, **extra):
 
 
 def table_block(header, rows, numeric=True):
-    """A table; with `numeric`, every column after the first is right-aligned."""
+    """A table; with `numeric`, every column after the first is right-aligned.
+
+    A cell "value ± error" is kept on one line (no-break spaces around ±), so that
+    a narrow page wraps it only between the ends of an interval.
+    """
+    rows = [[c.replace(" ± ", "\u00a0±\u00a0") if isinstance(c, str) else c for c in row]
+            for row in rows]
     return {"kind": "table", "header": header, "rows": rows, "numeric": numeric}
 
 

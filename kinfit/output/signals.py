@@ -139,8 +139,8 @@ def signals_bundle(result, wavelengths=None):
     holds; read by the HTML report). With full spectra also ``spectra.csv``,
     ``spectra.png``/``.svg``, ``wavelength_traces.png``/``.svg`` (data and
     fit at chosen wavelengths), ``residual_map.png``/``.svg`` and
-    ``residual_map_<run>.csv`` (fit − data, time down and wavelength across,
-    as the input files); with an SVD ``components.png``/``.svg``.
+    ``residual_map_<run>.csv`` (observed − fitted, time down and wavelength
+    across, as the input files); with an SVD ``components.png``/``.svg``.
 
     Parameters
     ----------
@@ -177,7 +177,7 @@ def signals_bundle(result, wavelengths=None):
             if run.name in spectra.runs:
                 fitted = spectra.fitted[spectra.runs.index(run.name)]
                 files = files | {f"residual_map_{_file_safe(run.name)}.csv": matrix_csv(
-                    run.spectrum.times, spectra.wavelengths, fitted - run.spectrum.values)}
+                    run.spectrum.times, spectra.wavelengths, run.spectrum.values - fitted)}
     if sig.components is not None:
         n_abs = len(spectra.species) if spectra is not None else None
         files = files | figure_files({"components": plot_components(sig.components, n_abs)})
