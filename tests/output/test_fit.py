@@ -15,7 +15,13 @@ from kinfit.core.formatting import CAUTIONS
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.experiment import load_experiment
 from kinfit.inputs.mechanism import load_mechanism
-from kinfit.output.fit import fit_bundle, format_fit, parameters_csv, points_csv, write_fit
+from kinfit.output.fit import (
+    fit_bundle,
+    format_fit,
+    parameters_csv,
+    points_csv,
+    write_fit,
+)
 
 TIMES = np.array([0.0, 5.0, 10.0, 20.0])
 VALUES = np.array([1.0, 0.61, 0.37, 0.14])
