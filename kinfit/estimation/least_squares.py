@@ -44,6 +44,8 @@ import numpy as np
 
 from kinfit.core.defaults import DEFAULT_STARTS
 from kinfit.core.errors import KinfitError
+from kinfit.core.formatting import covariance_interval, interval_quantile
+from kinfit.core.units import format_power
 from kinfit.estimation.levenberg_marquardt import local_fit
 from kinfit.estimation.likelihood import (
     count_parameters,
@@ -202,6 +204,33 @@ class FitResult:
         dof = self.n_points - self.n_free
         return self.chi2 / dof if dof > 0 else math.nan
 
+    @property
+    def residual_unit(self):
+        """Unit of the unweighted residuals and of σ̂ (plain text): the concentration
+        unit, the signal unit ("" for absorbance), or None when both are fitted."""
+        exp = self.experiment
+        conc = {t.species in self.mechanism.species for r in exp.runs for t in r.traces}
+        if self.signals is None or conc == {True}:
+            return exp.units.concentration
+        return None if True in conc else (self.signals.unit or "")
+
+    def interval(self, name, level=0.95):
+        """Covariance interval [lo, hi] of a fitted parameter, or None.
+
+        value ± q·SE with q from Student's t (N − p degrees of freedom) when the
+        noise is estimated, from the normal distribution when it is declared;
+        symmetric in the parameter itself, k rather than log k (see
+        :data:`kinfit.core.formatting.INTERVAL_NOTE`).
+        """
+        return covariance_interval(self.values.get(name), self.stderr.get(name),
+                                   interval_quantile(level, self.interval_dof))
+
+    @property
+    def interval_dof(self):
+        """Degrees of freedom of the intervals' t quantile: N − p, or None (normal) when
+        the noise is declared."""
+        return None if self.noise_declared else max(self.n_points - self.n_free, 1)
+
     def rate_laws(self, digits=3):
         """Each direction's rate law with fitted orders.
 
@@ -257,7 +286,10 @@ class FitResult:
                 "min": lo if math.isfinite(lo) else None,
                 "max": hi if math.isfinite(hi) else None,
                 "at_bound": name in self.at_bounds,
+                "ci95": self.interval(name),
             }
+        unit = self.residual_unit
+        weighted = self.noise_declared
         stats = {
             "n_data": self.n_points,
             "n_params": self.n_free,
@@ -269,6 +301,18 @@ class FitResult:
             "aic": self.aic,
             "aicc": self.aicc,
             "bic": self.bic,
+            # chisqr and reduced_chisqr keep their old meaning (the sum of squared residuals,
+            # weighted or not); these name what it is
+            "weighted": weighted,
+            "chi_square": self.chi2 if weighted else None,
+            "reduced_chi_square": self.reduced_chi2 if weighted else None,
+            "residual_sum_of_squares": None if weighted else self.chi2,
+            "residual_sum_of_squares_unit": (None if weighted or unit is None
+                                             else format_power(unit, 2) if unit else ""),
+            "sigma_unit": None if weighted else unit,
+            "ci95_quantile": interval_quantile(0.95, self.interval_dof),
+            "ci95_distribution": ("normal" if self.interval_dof is None
+                                  else f"Student t, {self.interval_dof} degrees of freedom"),
         }
         corr = None
         if self.correlation is not None:
@@ -292,7 +336,17 @@ class FitResult:
             "warnings": list(self.warnings),
             "signals": None if self.signals is None else self.signals.to_dict(),
             "residual_checks": [c.to_dict() for c in self.residual_checks],
+            "runs": [_run_conditions(run) for run in self.experiment.runs],
         }
+
+
+def _run_conditions(run):
+    """A run's starting conditions for the reports' table of runs."""
+    measured = list(run.species) + (["spectra"] if run.spectrum is not None else [])
+    return {"name": run.name, "initial": dict(run.initial),
+            "fitted_initial": {s: p.name for s, p in run.fitted_initial.items()},
+            "temperature_K": run.temperature,
+            "n_points": run.n_points, "measured": measured}
 
 
 # -------------------------------------------------------------------- fit

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.figure import Figure
 
-from kinfit.figures.style import PALETTE, panel_grid, plain_log_axes
+from kinfit.figures.style import PALETTE, panel_grid, plain_log_axes, unit_text
 
 __all__ = ["plot_weights", "plot_initial_rates"]
 
@@ -76,7 +76,7 @@ def plot_initial_rates(check, fig=None):
         ax.text(0.02, 0.9, "No order regression:\n" + "\n".join(ir.notes[:6]), va="top",
                 fontsize=8, wrap=True)
         return fig
-    fig, axes = panel_grid(fig, len(reg.species), width=4.0, height=3.4)
+    fig, axes, _ = panel_grid(fig, len(reg.species), width=4.0, height=3.4)
     centre = reg.log_conc.mean(axis=0)
     fitted = {c.species: c for c in check.orders}
     orders = np.array([reg.orders[s] for s in reg.species])
@@ -100,8 +100,8 @@ def plot_initial_rates(check, fig=None):
             ax.plot(np.exp(grid), np.exp(mid_y + slope * (grid - mid_x)), color=PALETTE[1],
                     lw=1.5, ls="--", label=f"time course: {slope:.3g}")
         plain_log_axes(ax, np.unique(np.round(np.exp(x), 12)))
-        ax.set_xlabel(f"[{s}]0 ({ir.concentration_unit})")
-        ax.set_ylabel(f"adjusted initial rate ({units})")
+        ax.set_xlabel(f"[{s}]₀ ({unit_text(ir.concentration_unit)})")
+        ax.set_ylabel(f"adjusted initial rate ({unit_text(units)})")
         ax.set_title(f"order in {s}", fontsize=9)
         ax.legend(fontsize=7, frameon=False)
     fig.suptitle(f"Initial rates ({ir.reaction})", fontsize=11)

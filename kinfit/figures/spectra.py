@@ -6,7 +6,14 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.figure import Figure
 
-from kinfit.figures.style import PALETTE, panel_grid, run_title, species_styles
+from kinfit.figures.style import (
+    PALETTE,
+    legend_once,
+    panel_grid,
+    run_title,
+    species_styles,
+    unit_text,
+)
 
 __all__ = ["plot_spectra", "plot_wavelength_traces", "plot_residual_map", "plot_components"]
 
@@ -37,7 +44,8 @@ def plot_spectra(spectra, fig=None):
                             color=color, alpha=0.2, lw=0)
     ax.axhline(0.0, color="0.5", lw=0.6)
     ax.set_xlabel(f"wavelength ({spectra.wavelength_unit})")
-    ax.set_ylabel(f"absorptivity ({spectra.unit})" if spectra.unit else "absorptivity")
+    ax.set_ylabel(f"absorptivity ({unit_text(spectra.unit)})" if spectra.unit
+                  else "absorptivity")
     ax.set_title("resolved spectra (bands: ±2 standard errors)", fontsize=10)
     ax.legend(fontsize=8, frameon=False)
     return fig
@@ -60,7 +68,7 @@ def plot_wavelength_traces(result, wavelengths, fig=None):
     """
     spectra = result.signals.spectra
     runs = [r for r in result.experiment.runs if r.name in spectra.runs]
-    fig, axes = panel_grid(fig, len(runs))
+    fig, axes, spare = panel_grid(fig, len(runs))
     labels = [f"{w:g} {spectra.wavelength_unit}" for w in wavelengths]
     style = species_styles(labels)
     columns = [int(np.argmin(np.abs(spectra.wavelengths - w))) for w in wavelengths]
@@ -73,16 +81,15 @@ def plot_wavelength_traces(result, wavelengths, fig=None):
                     markersize=3, color=color, alpha=0.7, label=f"{label} data")
             ax.plot(data.times, fitted[:, col], color=color, lw=1.5, label=f"{label} fit")
         ax.set_title(run_title(run, result.experiment.units), fontsize=9)
-        ax.set_xlabel(f"time ({result.experiment.units.time})")
+        ax.set_xlabel(f"time ({unit_text(result.experiment.units.time)})")
         ax.set_ylabel("signal")
-    if len(axes):
-        axes[0].legend(fontsize=7, frameon=False)
+    legend_once(fig, axes, spare)
     fig.suptitle("full spectra at chosen wavelengths: data and global fit", fontsize=11)
     return fig
 
 
 def plot_residual_map(result, fig=None):
-    """Residuals (fit − data) of full-spectrum data as time × wavelength maps, per run.
+    """Residuals (observed − fitted) of full-spectrum data as time × wavelength maps, per run.
 
     Returns
     -------
@@ -90,9 +97,9 @@ def plot_residual_map(result, fig=None):
     """
     spectra = result.signals.spectra
     runs = [r for r in result.experiment.runs if r.name in spectra.runs]
-    maps = [spectra.fitted[spectra.runs.index(r.name)] - r.spectrum.values for r in runs]
+    maps = [r.spectrum.values - spectra.fitted[spectra.runs.index(r.name)] for r in runs]
     limit = max(float(np.max(np.abs(m))) for m in maps) or 1.0
-    fig, axes = panel_grid(fig, len(runs))
+    fig, axes, _ = panel_grid(fig, len(runs))
     wl = spectra.wavelengths
     image = None
     for ax, run, res in zip(axes, runs, maps):
@@ -101,9 +108,9 @@ def plot_residual_map(result, fig=None):
                               shading="nearest")
         ax.set_title(run.name, fontsize=9)
         ax.set_xlabel(f"wavelength ({spectra.wavelength_unit})")
-        ax.set_ylabel(f"time ({result.experiment.units.time})")
+        ax.set_ylabel(f"time ({unit_text(result.experiment.units.time)})")
     if image is not None:
-        fig.colorbar(image, ax=list(axes), label="fit − data", shrink=0.8)
+        fig.colorbar(image, ax=list(axes), label="observed − fitted", shrink=0.8)
     fig.suptitle("residual map: structure here means the model misses something", fontsize=11)
     return fig
 

@@ -13,7 +13,7 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from kinfit.figures.fit import plot_trajectory
-from kinfit.figures.style import PALETTE, panel_grid
+from kinfit.figures.style import PALETTE, panel_grid, unit_text
 
 __all__ = ["plot_arrhenius", "plot_eyring", "plot_prediction"]
 
@@ -32,7 +32,7 @@ def _activation_panel(ax, act, stage, predicted, eyring):
 
     if eyring and act.si_factor is None:
         ax.text(0.5, 0.5, f"no Eyring plot for {act.constant}:\nits unit cannot be "
-                f"converted to (mol/L)^(1-n) s^-1", ha="center", va="center",
+                f"converted to (mol/L)¹⁻ⁿ s⁻¹", ha="center", va="center",
                 transform=ax.transAxes, fontsize=8)
         return False
     shift = (lambda t: np.log(act.si_factor / t)) if eyring else (lambda t: 0.0 * t)
@@ -72,16 +72,16 @@ def _activation_panel(ax, act, stage, predicted, eyring):
                     color=PALETTE[3] if rate.extrapolated else PALETTE[2], ms=6, capsize=3,
                     label=label)
     ax.set_xlabel("1000 / T (1/K)")
-    unit = act.unit or "k's unit"
-    ax.set_ylabel(f"ln(k/T), k in {act.si_unit or '(mol/L)^(1-n) s^-1'}, T in K" if eyring
-                  else f"ln(k / ({unit}))")
+    unit = unit_text(act.unit) or "k's unit"
+    ax.set_ylabel(f"ln(k/T), k in {unit_text(act.si_unit) or '(mol/L)¹⁻ⁿ s⁻¹'}, T in K"
+                  if eyring else f"ln(k / ({unit}))")
     ax.set_title(f"{act.constant}: {'Eyring' if eyring else 'Arrhenius'} plot", fontsize=10)
     ax.legend(fontsize=7, frameon=False, loc="best")
     return True
 
 
 def _activation_figure(activations, two_stage, predicted, fig, eyring):
-    fig, axes = panel_grid(fig, len(activations), width=5.0, height=3.8)
+    fig, axes, _ = panel_grid(fig, len(activations), width=5.0, height=3.8)
     for ax, act in zip(axes, activations):
         stage = None
         if two_stage is not None:

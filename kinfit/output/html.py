@@ -6,7 +6,14 @@ files (``result.json``, ``temperature.json``, ``posterior.json``,
 (SVG) — and renders ``report.html`` with jinja2. Figures are embedded as
 ``data:`` URIs, the style sheet is inline, and nothing refers to the network,
 so the file opens anywhere and prints cleanly. Each section appears only when
-its data exist.
+its data exist, and an interval column only when its analysis was run.
+
+The output folder of a ranking holds the best candidate's fit in ``best/``:
+its report shows that fit (rate law, parameters, runs, figures) beside the
+ranking, and ``best/`` gets a report of its own.
+
+Units are plain text in the JSON files (``mM^-2 min^-1``) and shown with
+superscripts here (``mM⁻² min⁻¹``; :func:`kinfit.core.formatting.superscripts`).
 
 Each JSON file is checked against the schema version this kinfit writes
 (:mod:`kinfit.core.schema`): files without a version (written before
@@ -15,20 +22,35 @@ versions were recorded) are read, a file of another major version is refused.
 
 from __future__ import annotations
 
-import base64
 import json
-import math
 from pathlib import Path
 
 from kinfit.core.errors import KinfitError
-from kinfit.core.formatting import CAUTIONS
+from kinfit.core.formatting import CAUTIONS, format_interval, format_value
 from kinfit.core.schema import check_schema
 from kinfit.output.bundle import write_bundle
+from kinfit.output.report_blocks import (
+    Page,
+    average_blocks,
+    law_blocks,
+    nested_blocks,
+    winner_blocks,
+    written_rate_law,
+)
+from kinfit.output.report_blocks import figure_block as _figure
+from kinfit.output.report_blocks import interval_cell as _interval
+from kinfit.output.report_blocks import number as _num
+from kinfit.output.report_blocks import table_block as _table
+from kinfit.output.report_blocks import text_block as _text
+from kinfit.output.report_blocks import unit_html as _unit
+from kinfit.output.report_blocks import without_empty_columns as _columns
+from kinfit.output.text import kelvin_celsius
 
-__all__ = ["build_report", "SECTION_HEADINGS"]
+__all__ = ["build_report", "SECTION_HEADINGS", "written_rate_law"]
 
 SECTION_HEADINGS = {
     "summary": "Summary",
+    "conditions": "Runs and their conditions",
     "parameters": "Parameters",
     "runs": "Runs: data, fitted curves and residuals",
     "residuals": "Residual checks",
@@ -47,6 +69,7 @@ SECTION_HEADINGS = {
 _SOURCES = {"result": "result.json", "temperature": "temperature.json",
             "posterior": "posterior.json", "ranking": "ranking.json", "signals": "spectra.json",
             "provenance": "provenance.json"}
+BEST = "best"
 
 
 def _load(folder, kind):
@@ -61,52 +84,24 @@ def _load(folder, kind):
     return check_schema(data, kind, path)
 
 
-def _figure(folder, stem, caption, alt=None):
-    """A figure block from stem.svg (or stem.png), or None if neither exists."""
-    for suffix, mime in ((".svg", "image/svg+xml"), (".png", "image/png")):
-        path = folder / f"{stem}{suffix}"
-        if path.is_file():
-            data = base64.b64encode(path.read_bytes()).decode("ascii")
-            return {"kind": "figure", "src": f"data:{mime};base64,{data}", "caption": caption,
-                    "alt": alt or caption}
-    return None
-
-
-def _num(x, digits=4):
-    if x is None or (isinstance(x, float) and not math.isfinite(x)):
-        return "–"
-    if isinstance(x, (int,)) and not isinstance(x, bool):
-        return str(x)
-    return f"{x:.{digits}g}"
-
-
-def _interval(pair, digits=4):
-    if not pair or pair[0] is None or pair[1] is None:
-        return "–"
-    return f"[{_num(pair[0], digits)}, {_num(pair[1], digits)}]"
-
-
-def _text(kind, text, **extra):
-    return {"kind": kind, "text": text, **extra}
-
-
-def _table(header, rows, numeric=True):
-    return {"kind": "table", "header": header, "rows": rows, "numeric": numeric}
-
-
 def build_report(folder, title=None):
     """Render ``folder/report.html`` from the outputs in `folder`.
+
+    A ranking's folder gets ``best/report.html`` as well (the best
+    candidate's fit on its own).
 
     Parameters
     ----------
     folder : str or os.PathLike
         An output folder of ``kinfit fit``, ``sample``, ``rank`` or ``demo``.
     title : str, optional
+        Default: "Kinetics report" (or "Ranking of candidate rate laws") and
+        the study's name.
 
     Returns
     -------
     pathlib.Path
-        The report written.
+        The report written (``folder/report.html``).
 
     Raises
     ------
@@ -123,20 +118,32 @@ def build_report(folder, title=None):
         raise KinfitError(f"{folder}: holds no kinfit results (result.json, posterior.json, "
                           f"ranking.json, ...); run kinfit fit, sample or rank with --out "
                           f"{folder} first")
+    figures = folder
+    best = folder / BEST
+    if data["ranking"] is not None and (best / _SOURCES["result"]).is_file():
+        study = data["ranking"].get("experiment") or "kinfit results"
+        build_report(best, title=f"Kinetics report: {study} (best-supported candidate of "
+                                 f"the ranking)")
+        if data["result"] is None:
+            for kind in ("result", "temperature", "signals"):
+                data[kind] = data[kind] or _load(best, kind)
+            figures = best
+    page = Page(folder=folder, figures=figures, data=data)
     sections = []
-    for key, builder in (("summary", _summary), ("parameters", _parameters),
-                         ("runs", _runs), ("residuals", _residual_checks),
-                         ("posterior", _posterior), ("ranking", _ranking),
-                         ("initial_rates", _initial_rates), ("spectra", _spectra),
-                         ("temperature", _temperature), ("warnings", _warnings),
-                         ("cautions", _cautions), ("provenance", _provenance)):
-        blocks = [b for b in builder(folder, data) if b is not None]
+    for key, builder in (("summary", _summary), ("conditions", _conditions),
+                         ("parameters", _parameters), ("runs", _runs),
+                         ("residuals", _residual_checks), ("posterior", _posterior),
+                         ("ranking", _ranking), ("initial_rates", _initial_rates),
+                         ("spectra", _spectra), ("temperature", _temperature),
+                         ("warnings", _warnings), ("cautions", _cautions),
+                         ("provenance", _provenance)):
+        blocks = [b for b in builder(page, data) if b is not None]
         if blocks:
             sections.append({"id": key, "heading": SECTION_HEADINGS[key], "blocks": blocks})
+    title = title or _title(data, ranked=figures != folder)
     result = data["result"] or {}
-    title = title or f"Kinetics report: {result.get('model') or 'kinfit results'}"
     subtitle = " · ".join(x for x in (
-        f"experiment {result['experiment']}" if result.get("experiment") else "",
+        f"model '{result['model']}'" if result.get("model") else "",
         f"written {data['provenance']['created']}" if data["provenance"] else "",
         "kinfit " + data["provenance"]["kinfit"] if data["provenance"] else "") if x)
     env = jinja2.Environment(
@@ -147,43 +154,91 @@ def build_report(folder, title=None):
     return write_bundle(folder, {"report.html": html})[0]
 
 
+def _title(data, ranked=False):
+    """The page title, naming the study (the experiment's name); `ranked` for the folder of
+    a ranking, whose fit is its best candidate's."""
+    study = next((d.get("experiment") for d in (data["result"], data["ranking"],
+                                                 data["posterior"]) if d and
+                  d.get("experiment")), None) or "kinfit results"
+    if data["ranking"] is not None and (ranked or data["result"] is None):
+        return f"Ranking of candidate rate laws: {study}"
+    return f"Kinetics report: {study}"
+
+
 # ------------------------------------------------------------------ sections
 
-def _summary(folder, data):
+def _summary(page, data):
     result = data["result"]
     if not result:
         return []
     units = result.get("units", {})
     stats = result.get("statistics", {})
-    blocks = [_text("text", f"Model '{result['model']}' fitted to all runs of "
-                            f"'{result['experiment']}' at once ({stats.get('n_data')} points, "
-                            f"{stats.get('n_params')} fitted parameters); the fit "
-                            f"{'converged' if result.get('success') else 'did NOT converge'}.")]
-    for law in result.get("rate_laws", []):
-        direction = " (reverse)" if law.get("direction") == "reverse" else ""
-        blocks.append(_text("law", f"{law['reaction']}{direction}:  rate = {law['rate']}",
-                            note=f"overall order {law['overall_order']:.3g}"))
+    ranking = data["ranking"]
+    intro = (f"Model '{result['model']}' fitted to all runs of '{result['experiment']}' at "
+             f"once ({stats.get('n_data')} points, {stats.get('n_params')} fitted "
+             f"parameters); the fit {'converged' if result.get('success') else 'did NOT converge'}.")
+    if ranking and page.figures != page.folder:
+        intro = (f"The best-supported of {len(ranking.get('candidates', []))} candidate rate "
+                 f"laws (see the ranking below), {intro[0].lower()}{intro[1:]}")
+    blocks = [_text("text", intro)] + law_blocks(result)
     rows = []
     for name, p in result.get("parameters", {}).items():
         if p.get("role") == "rate constant":
-            rows.append([name, _num(p["value"]), _num(p.get("stderr"), 2), p.get("unit") or ""])
+            rows.append([name, format_value(p["value"], p.get("stderr")),
+                         format_interval(p.get("ci95"), p.get("stderr")), _unit(p.get("unit"))])
     if rows:
-        blocks.append(_table(["rate constant", "value", "standard error", "unit"], rows))
+        header, rows = _columns(["rate constant", "value ± standard error",
+                                 "95 % interval (covariance)", "unit"], rows,
+                                {"95 % interval (covariance)"})
+        blocks.append(_table(header, rows))
     for act in (data["temperature"] or {}).get("activation", []):
         k_rows = [[f"{r['temperature_K']:.2f}", _num(r["value"]), _num(r.get("stderr"), 2),
-                   act.get("unit_of_k") or "", "yes" if r.get("extrapolated") else ""]
+                   _unit(act.get("unit_of_k")), "yes" if r.get("extrapolated") else ""]
                   for r in act.get("rate_constants", [])]
         if k_rows:
             blocks.append(_text("heading", f"{act['rate_constant']} at each temperature"))
-            blocks.append(_table(["T (K)", "k", "standard error", "unit", "extrapolated"],
-                                 k_rows))
-    blocks.append(_text("text", f"Concentrations in {units.get('concentration')}, times in "
-                                f"{units.get('time')}. Rates follow the IUPAC rate of reaction, "
-                                f"d[X]/dt = ν_X × rate."))
+            blocks.append(_table(*_columns(["T (K)", "k", "standard error", "unit",
+                                            "extrapolated"], k_rows, {"extrapolated"})))
+    blocks.append(_text("text", f"Concentrations in {_unit(units.get('concentration'))}, "
+                                f"times in {_unit(units.get('time'))}. Rates follow the IUPAC "
+                                f"rate of reaction, d[X]/dt = ν_X × rate."))
     return blocks
 
 
-def _parameters(folder, data):
+def _conditions(page, data):
+    """The runs and their starting conditions (result.json ``runs``)."""
+    result = data["result"] or {}
+    runs = result.get("runs")
+    if not runs:
+        return []
+    conc = _unit((result.get("units") or {}).get("concentration"))
+    params = result.get("parameters", {})
+    species = []
+    for run in runs:
+        for s in list(run.get("initial", {})) + list(run.get("fitted_initial", {})):
+            if s not in species:
+                species.append(s)
+    temps = any(run.get("temperature_K") is not None for run in runs)
+    rows = []
+    for run in runs:
+        cells = []
+        for s in species:
+            name = (run.get("fitted_initial") or {}).get(s)
+            if name is not None and name in params:
+                cells.append(f"{format_value(params[name]['value'], params[name].get('stderr'))}"
+                             f" (fitted)")
+            else:
+                cells.append(f"{run.get('initial', {}).get(s, 0.0):g}")
+        temp = ([kelvin_celsius(run["temperature_K"]) if run.get("temperature_K") is not None
+                 else "–"] if temps else [])
+        rows.append([run["name"], *cells, *temp, run.get("n_points"),
+                     ", ".join(run.get("measured", []))])
+    header = ["run", *[f"[{s}]₀ ({conc})" for s in species],
+              *(["temperature"] if temps else []), "points", "measured"]
+    return [_table(header, rows)]
+
+
+def _parameters(page, data):
     result = data["result"]
     if not result:
         return []
@@ -191,19 +246,26 @@ def _parameters(folder, data):
     rows = []
     for name, p in result.get("parameters", {}).items():
         se = p.get("stderr")
-        cov = [p["value"] - 1.96 * se, p["value"] + 1.96 * se] if se is not None else None
         prof = ((post.get(name) or {}).get("profile") or {}).get("ci95")
-        rows.append([name, _num(p["value"]), _num(se, 2), _interval(cov),
-                     _interval(prof), _interval((post.get(name) or {}).get("ci95")),
-                     p.get("unit") or "", ("fixed" if not p.get("vary") else "") +
+        rows.append([name, _num(p["value"]), _num(se, 2), _interval(p.get("ci95"), se),
+                     _interval(prof, se), _interval((post.get(name) or {}).get("ci95"), se),
+                     _unit(p.get("unit")), ("fixed" if not p.get("vary") else "") +
                      (" at a bound" if p.get("at_bound") else "")])
-    blocks = [_table(["parameter", "estimate", "standard error", "95 % (covariance)",
-                      "95 % (profile)", "95 % (posterior)", "unit", "note"], rows)]
+    intervals = {"95 % (covariance)", "95 % (profile)", "95 % (posterior)", "note"}
+    header, rows = _columns(["parameter", "estimate", "standard error", "95 % (covariance)",
+                             "95 % (profile)", "95 % (posterior)", "unit", "note"], rows,
+                            intervals)
+    blocks = [_table(header, rows)]
     stats = result.get("statistics", {})
-    blocks.append(_table(["N", "p", "χ²", "χ²/(N−p)", "noise", "AIC", "AICc", "BIC"], [[
-        stats.get("n_data"), stats.get("n_params"), _num(stats.get("chisqr"), 6),
-        _num(stats.get("reduced_chisqr"), 3), stats.get("noise"), _num(stats.get("aic"), 6),
-        _num(stats.get("aicc"), 6), _num(stats.get("bic"), 6)]]))
+    if "95 % (covariance)" in header:
+        how = stats.get("ci95_distribution")
+        quantile = stats.get("ci95_quantile")
+        blocks.append(_text("text", "95 % (covariance): estimate ± q × standard error"
+                            + (f", q = {quantile:.3f} ({how})" if quantile else "")
+                            + "; symmetric in each parameter itself (in k, not in log k: rate "
+                              "constants are fitted as log10 k and their standard errors "
+                              "mapped to k by the delta method)."))
+    blocks.append(_statistics_table(stats))
     corr = result.get("correlation")
     if corr:
         names = corr["names"]
@@ -214,13 +276,36 @@ def _parameters(folder, data):
     return blocks
 
 
-def _runs(folder, data):
+def _statistics_table(stats):
+    """χ² for a weighted fit; otherwise the residual sum of squares with its unit and σ̂."""
+    weighted = stats.get("weighted", stats.get("noise") == "declared")
+    first = [stats.get("n_data"), stats.get("n_params")]
+    last = [_num(stats.get("aic"), 6), _num(stats.get("aicc"), 6), _num(stats.get("bic"), 6)]
+    if weighted:
+        return _table(["N", "p", "χ² (weighted)", "χ²/(N−p)", "noise", "AIC", "AICc", "BIC"],
+                      [first + [_num(stats.get("chisqr"), 6),
+                                _num(stats.get("reduced_chisqr"), 3),
+                                "declared (weighted fit)"] + last])
+    rss_unit = stats.get("residual_sum_of_squares_unit")
+    sigma_unit = stats.get("sigma_unit")
+    return _table(["N", "p", "residual sum of squares" + (f" ({_unit(rss_unit)})" if rss_unit
+                                                           else ""),
+                   "σ̂" + (f" ({_unit(sigma_unit)})" if sigma_unit else ""), "noise", "AIC",
+                   "AICc", "BIC"],
+                  [first + [_num(stats.get("chisqr"), 6), _num(stats.get("sigma"), 3),
+                            "estimated from the fit (unweighted)"] + last])
+
+
+def _runs(page, data):
     if not data["result"]:
         return []
-    return [_figure(folder, "bands", "Each run's data with the posterior's curves and 95 % "
-                                     "bands for a new measurement.")
-            or _figure(folder, "fit", "Each run's data (points) with the global fit (lines)."),
-            _figure(folder, "residuals", "Residuals of each run; the grey band marks ±2σ.")]
+    folder = page.figures
+    return [_figure(page.folder, "bands", "Each run's data with the posterior's curves and 95 % "
+                                          "bands for a new measurement.")
+            or _figure(folder, "fit", "Each run's data (points) with the global fit (lines); "
+                                      "species a run did not measure dashed."),
+            _figure(folder, "residuals", "Residuals (observed − fitted) of each run; the grey "
+                                         "band marks ±2σ.")]
 
 
 def _residual_checks(folder, data):
@@ -239,7 +324,7 @@ def _residual_checks(folder, data):
                     "verdict"], rows)]
 
 
-def _posterior(folder, data):
+def _posterior(page, data):
     post = data["posterior"]
     if not post:
         return []
@@ -253,9 +338,10 @@ def _posterior(folder, data):
                         f"The chains have NOT converged ({reasons}): "
                         f"{advice if isinstance(advice, str) else '; '.join(advice)}"))
     rows = [[name, _num(p.get("median")), _num(p.get("mean")), _num(p.get("sd"), 2),
-             _interval(p.get("ci68")), _interval(p.get("ci95"))]
+             _interval(p.get("ci68"), p.get("sd")), _interval(p.get("ci95"), p.get("sd")),
+             _unit(p.get("unit"))]
             for name, p in post.get("parameters", {}).items()]
-    blocks.append(_table(["parameter", "median", "mean", "sd", "68 %", "95 %"], rows))
+    blocks.append(_table(["parameter", "median", "mean", "sd", "68 %", "95 %", "unit"], rows))
     per = [[name, _num((diag.get("autocorr_time") or {}).get(name), 3),
             _num((diag.get("ess") or {}).get(name), 4), _num((diag.get("rhat") or {}).get(name), 4)]
            for name in post.get("parameters", {})]
@@ -271,8 +357,8 @@ def _posterior(folder, data):
     if corr:
         blocks.append(_text("text", "Correlation between rate constants and orders in the "
                                     "posterior: " + _correlations_text(corr)))
-    blocks.append(_figure(folder, "corner", "Posterior of the parameters (corner plot)."))
-    blocks.append(_figure(folder, "profiles", "Profile likelihood of each parameter."))
+    blocks.append(_figure(page.folder, "corner", "Posterior of the parameters (corner plot)."))
+    blocks.append(_figure(page.folder, "profiles", "Profile likelihood of each parameter."))
     return blocks
 
 
@@ -287,42 +373,47 @@ def _correlations_text(corr):
     return str(corr)
 
 
-def _ranking(folder, data):
+def _ranking(page, data):
     ranking = data["ranking"]
     if not ranking:
         return []
+    candidates = ranking.get("candidates", [])
+    blocks = winner_blocks(ranking)
     rows = [[c["name"], ", ".join(f"{k}={v:g}" for k, v in (c.get("fixed") or {}).items()),
              c["n_params"], _num(c.get("aicc"), 6), _num(c.get("delta_aicc"), 3),
              _num(c.get("akaike_weight"), 3), _num(c.get("bic_weight"), 3)]
-            for c in ranking.get("candidates", [])]
-    blocks = [_table(["candidate", "fixed", "p", "AICc", "ΔAICc", "Akaike weight",
-                      "BIC weight"], rows)]
+            for c in candidates]
+    blocks.append(_table(*_columns(["candidate", "fixed", "p", "AICc", "ΔAICc",
+                                    "Akaike weight", "BIC weight"], rows, {"fixed"})))
     for verdict in ranking.get("verdicts", []) or []:
         blocks.append(_text("text", verdict if isinstance(verdict, str) else str(verdict)))
-    blocks.append(_figure(folder, "weights", "Akaike weights of the candidates."))
+    blocks.append(_figure(page.folder, "weights", "Akaike weights of the candidates."))
+    blocks += nested_blocks(ranking) + average_blocks(ranking)
     return blocks
 
 
-def _initial_rates(folder, data):
+def _initial_rates(page, data):
     ranking = data["ranking"] or {}
     cross = ranking.get("initial_rates")
     if not cross:
         return []
-    blocks = [_figure(folder, "initial_rates", "Initial rates against initial concentrations "
-                                                "(log-log) with the regression.")]
+    blocks = [_figure(page.folder, "initial_rates", "Initial rates against initial "
+                                                     "concentrations (log-log) with the "
+                                                     "regression.")]
     for w in cross.get("warnings", []) or []:
-        blocks.append(_text("warning", w))
+        blocks.append(page.warning(w))
     return blocks
 
 
-def _spectra(folder, data):
+def _spectra(page, data):
     spectra = data["signals"]
     if not spectra:
         return []
+    folder = page.figures
     blocks = []
     coefficients = spectra.get("coefficients") or {}
     if coefficients:
-        rows = [[name, _num(c.get("value")), _num(c.get("stderr"), 2), c.get("unit", ""),
+        rows = [[name, _num(c.get("value")), _num(c.get("stderr"), 2), _unit(c.get("unit")),
                  c.get("kind", "")] for name, c in coefficients.items()]
         blocks.append(_text("text", "Absorptivities, offsets and drifts solved by linear "
                                          "least squares in every evaluation (variable "
@@ -338,41 +429,47 @@ def _spectra(folder, data):
     return blocks + [
         _figure(folder, "spectra", "Resolved spectrum of each species."),
         _figure(folder, "wavelength_traces", "Fitted against measured at chosen wavelengths."),
-        _figure(folder, "residual_map", "Residuals over time and wavelength."),
+        _figure(folder, "residual_map", "Residuals (observed − fitted) over time and "
+                                        "wavelength."),
         _figure(folder, "components", "Singular values of the spectra and the threshold.")]
 
 
-def _temperature(folder, data):
+def _temperature(page, data):
     temp = data["temperature"]
     if not temp:
         return []
     blocks = []
     for act in temp.get("activation", []):
         rows = [[e.get("label", name), _num(e.get("value")), _num(e.get("stderr"), 2),
-                 _interval(e.get("interval")), _interval(e.get("profile_interval")),
-                 _interval(e.get("posterior_interval")), e.get("unit", "")]
+                 _interval(e.get("interval"), e.get("stderr")),
+                 _interval(e.get("profile_interval"), e.get("stderr")),
+                 _interval(e.get("posterior_interval"), e.get("stderr")),
+                 _unit(e.get("unit"))]
                 for name, e in act.get("estimates", {}).items()]
         blocks.append(_text("heading", f"{act['rate_constant']}: {act['law'].capitalize()} "
                                        f"law, T_ref = {act['reference_temperature_K']:.2f} K"))
-        blocks.append(_table(["quantity", "estimate", "standard error", "95 % (covariance)",
-                              "95 % (profile)", "95 % (posterior)", "unit"], rows))
-    blocks.append(_figure(folder, "arrhenius", "Arrhenius plot: ln k against 1/T, "
-                                               "per-temperature fits and the global fit."))
-    blocks.append(_figure(folder, "eyring", "Eyring plot: ln(k/T) against 1/T."))
+        blocks.append(_table(*_columns(["quantity", "estimate", "standard error",
+                                        "95 % (covariance)", "95 % (profile)",
+                                        "95 % (posterior)", "unit"], rows,
+                                       {"95 % (covariance)", "95 % (profile)",
+                                        "95 % (posterior)"})))
+    blocks.append(_figure(page.figures, "arrhenius", "Arrhenius plot: ln k against 1/T, "
+                                                     "per-temperature fits and the global "
+                                                     "fit."))
+    blocks.append(_figure(page.figures, "eyring", "Eyring plot: ln(k/T) against 1/T."))
     for w in temp.get("order_warnings", []) or []:
-        blocks.append(_text("warning", w))
+        blocks.append(page.warning(w))
     return blocks
 
 
-def _warnings(folder, data):
-    out = []
-    for source in ("result", "posterior", "ranking", "signals"):
-        for w in (data[source] or {}).get("warnings", []) or []:
-            out.append(_text("warning", w))
-    return out
+def _warnings(page, data):
+    """Every warning of the results, each once (those shown in a section above are not
+    repeated)."""
+    return [page.warning(w) for source in ("result", "posterior", "ranking", "signals")
+            for w in (data[source] or {}).get("warnings", []) or []]
 
 
-def _cautions(folder, data):
+def _cautions(page, data):
     extra = (data["temperature"] or {}).get("cautions") or []
     texts = [CAUTIONS] + ([extra] if isinstance(extra, str) else list(extra))
     seen = []
@@ -382,7 +479,7 @@ def _cautions(folder, data):
     return [_text("caution", t) for t in seen]
 
 
-def _provenance(folder, data):
+def _provenance(page, data):
     prov = data["provenance"]
     if not prov:
         return []

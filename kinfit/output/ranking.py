@@ -13,6 +13,7 @@ import math
 from kinfit.analysis.criteria import SOURCES
 from kinfit.core.formatting import CAUTIONS, format_value
 from kinfit.core.schema import schema_json
+from kinfit.core.units import format_power
 from kinfit.output.bundle import Bundle, figure_files, write_bundle
 from kinfit.output.fit import fit_bundle
 from kinfit.output.text import csv_text, text_table, wrapped
@@ -47,8 +48,8 @@ def format_ranking(comparison, top=10, cautions=True):
               _number(r.delta_aicc), f"{r.akaike_weight:.3f}", _number(r.delta_bic),
               f"{r.bic_weight:.3f}", r.evidence_aicc)
              for i, r in enumerate(rows[:top], start=1)]
-    out += text_table(table, ("#", "candidate", "p", "χ²", "ΔAICc", "weight", "ΔBIC",
-                              "BIC weight", "support (ΔAICc)"))
+    out += text_table(table, ("#", "candidate", "p", _fit_column(comparison), "ΔAICc",
+                              "weight", "ΔBIC", "BIC weight", "support (ΔAICc)"))
     if len(rows) > top:
         out.append(f"  ... {len(rows) - top} more in ranking.json")
     for t in sorted({r.template for r in rows if r.template}):
@@ -80,6 +81,14 @@ def format_ranking(comparison, top=10, cautions=True):
             "true mechanism; a model not among the candidates may be better still. "
             + CAUTIONS, "  ", "  ")
     return "\n".join(out)
+
+
+def _fit_column(comparison):
+    """χ² for weighted fits (declared noise), else the residual sum of squares and its unit."""
+    if comparison.noise_declared:
+        return "χ²"
+    unit = comparison.best.fit.residual_unit
+    return f"RSS ({format_power(unit, 2)})" if unit else "RSS"
 
 
 def _nested_lines(comparison, shown_at_most=8):

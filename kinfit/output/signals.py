@@ -97,10 +97,11 @@ def _spectra_lines(spectra, wavelengths):
                                                       *spectra.species))]
     if spectra.sigma is None:
         fit_text = (f"χ² = {spectra.residual_sum:.6g} over {spectra.n_points} readings "
-                    f"(χ²/N = {spectra.residual_sum / spectra.n_points:.3g})")
+                    f"(weighted by the declared noise; χ²/N = "
+                    f"{spectra.residual_sum / spectra.n_points:.3g})")
     else:
-        fit_text = (f"Σ residual² = {spectra.residual_sum:.6g} over {spectra.n_points} "
-                    f"readings, σ̂ = {spectra.sigma:.3g}")
+        fit_text = (f"residual sum of squares = {spectra.residual_sum:.6g} over "
+                    f"{spectra.n_points} readings (unweighted), σ̂ = {spectra.sigma:.3g}")
     out.append(f"  full data at the fitted values: {fit_text}")
     return out
 
@@ -138,8 +139,8 @@ def signals_bundle(result, wavelengths=None):
     holds; read by the HTML report). With full spectra also ``spectra.csv``,
     ``spectra.png``/``.svg``, ``wavelength_traces.png``/``.svg`` (data and
     fit at chosen wavelengths), ``residual_map.png``/``.svg`` and
-    ``residual_map_<run>.csv`` (fit − data, time down and wavelength across,
-    as the input files); with an SVD ``components.png``/``.svg``.
+    ``residual_map_<run>.csv`` (observed − fitted, time down and wavelength
+    across, as the input files); with an SVD ``components.png``/``.svg``.
 
     Parameters
     ----------
@@ -176,7 +177,7 @@ def signals_bundle(result, wavelengths=None):
             if run.name in spectra.runs:
                 fitted = spectra.fitted[spectra.runs.index(run.name)]
                 files = files | {f"residual_map_{_file_safe(run.name)}.csv": matrix_csv(
-                    run.spectrum.times, spectra.wavelengths, fitted - run.spectrum.values)}
+                    run.spectrum.times, spectra.wavelengths, run.spectrum.values - fitted)}
     if sig.components is not None:
         n_abs = len(spectra.species) if spectra is not None else None
         files = files | figure_files({"components": plot_components(sig.components, n_abs)})

@@ -87,11 +87,12 @@ def format_activation(activations, two_stage=None, cautions=True):
             rows.append((label, format_value(e.value, e.stderr), e.unit,
                          interval_text(e.interval), interval_text(e.profile_interval),
                          interval_text(e.posterior_interval)))
-        out += text_table(rows, ("quantity", "value ± standard error", "unit",
-                                 f"{level:g} % interval", "profile", "posterior"))
-        out.append("    ΔS‡ and ΔG‡ for a standard state of 1 mol/L; profile and posterior "
-                   "intervals")
-        out.append("    appear when those analyses are run")
+        # the profile and posterior columns only where those analyses were run
+        keep = [i for i in range(6) if i < 4 or any(r[i] != "—" for r in rows)]
+        header = ("quantity", "value ± standard error", "unit", f"{level:g} % interval",
+                  "profile", "posterior")
+        out += text_table([[r[i] for i in keep] for r in rows], [header[i] for i in keep])
+        out.append("    ΔS‡ and ΔG‡ for a standard state of 1 mol/L")
         out.append(f"  {act.constant} at each measured temperature ({act.unit or ''})")
         rows = [(f"{r.temperature:.2f}", f"{celsius(r.temperature):.1f}",
                  format_value(r.value, r.stderr), interval_text(r.interval))

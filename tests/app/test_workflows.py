@@ -47,7 +47,7 @@ def test_fit_workflow_returns_the_fit_its_folder_and_its_summary(decay):
     assert outcome.result.values["k"] == pytest.approx(0.1, rel=1e-4)
     assert list(outcome.bundle) == ["fit.png", "fit.svg", "residuals.png", "residuals.svg",
                                     "provenance.json", "summary.txt", "fitted_curves.csv",
-                                    "result.json"]
+                                    "parameters.csv", "points.csv", "result.json"]
     assert outcome.bundle["summary.txt"] == outcome.summary + "\n"
     provenance = json.loads(outcome.bundle["provenance.json"])
     assert provenance["schema"] == "kinfit.provenance/1"

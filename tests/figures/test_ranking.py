@@ -26,7 +26,7 @@ def test_plot_initial_rates(small_ranking):
     axes = [ax for ax in fig.axes if ax.get_visible()]
     assert [ax.get_title() for ax in axes] == ["order in A", "order in B"]
     assert axes[0].get_xscale() == "log" and axes[0].get_yscale() == "log"
-    assert axes[1].get_xlabel() == "[B]0 (M)"
+    assert axes[1].get_xlabel() == "[B]₀ (M)"
     assert [line.get_label() for line in axes[0].lines if not line.get_label().startswith("_")
             ][1].startswith("time course: 1")
 

@@ -33,7 +33,7 @@ def test_spectrum_figures(spectra_fits):
     spectra = result.signals.spectra
     fig = plot_spectra(spectra)
     ax = fig.axes[0]
-    assert ax.get_xlabel() == "wavelength (nm)" and "mM^-1 cm^-1" in ax.get_ylabel()
+    assert ax.get_xlabel() == "wavelength (nm)" and "mM⁻¹ cm⁻¹" in ax.get_ylabel()
     assert [line.get_label() for line in ax.lines[:3]] == ["precursor", "intermediate", "dye"]
     fig = plot_wavelength_traces(result, [420.0, 564.0])
     axes = [a for a in fig.axes if a.get_visible()]
@@ -54,7 +54,8 @@ def test_signal_channel_traces(spectra_fits):
     axes = [a for a in plot_traces(result).axes if a.get_visible()]
     assert len(axes) == 4 and axes[0].get_ylabel() == "signal"
     data, fitted = axes[0].lines[:2]
-    assert fitted.get_label() == "A510 fit"
+    assert data.get_linestyle() == "None" and fitted.get_linestyle() == "-"
+    assert [t.get_text() for t in plot_traces(result).legends[0].get_texts()] == ["A510"]
     # the drawn curve is offset + ℓ Σ ε [X] on the fine grid (Beer–Lambert, by hand)
     curve = result.curves[0]
     model = result.signals.channel_models[("r1", "A510")]

@@ -15,7 +15,7 @@ from typer.testing import CliRunner
 
 from kinfit.app.cli import app
 from kinfit.core.errors import KinfitError
-from kinfit.core.formatting import CAUTIONS
+from kinfit.core.formatting import CAUTIONS, format_interval, format_value
 from kinfit.output.html import build_report
 
 ARTIFACTS = ROOT / "tests" / "artifacts"
@@ -39,9 +39,10 @@ def test_report_is_well_formed_and_self_contained(demo_folder):
     root = parse(html)
     ns = {"h": "http://www.w3.org/1999/xhtml"}
     headings = [h.text for h in root.iterfind(".//h:h2", ns)]
-    expected = ["Summary", "Parameters", "Runs: data, fitted curves and residuals",
-                "Residual checks", "Ranking of candidate rate laws", "Initial-rates cross-check",
-                "Cautions", "Provenance"]
+    expected = ["Summary", "Runs and their conditions", "Parameters",
+                "Runs: data, fitted curves and residuals", "Residual checks",
+                "Ranking of candidate rate laws", "Initial-rates cross-check", "Cautions",
+                "Provenance"]
     assert [h for h in headings if h in expected] == expected
     assert set(headings) - set(expected) <= {"Warnings"}
     # no external resource of any kind: every src is a data: URI, every href an anchor
@@ -156,3 +157,127 @@ def test_report_shows_the_temperature_caution_whole(tmp_path, arrhenius_study):
     ns = {"h": "http://www.w3.org/1999/xhtml"}
     cautions = [div.text for div in root.iterfind(".//h:div[@class='caution']", ns)]
     assert cautions == [CAUTIONS, temperature_cautions(acts[0].temperature_range)]
+
+
+NS = {"h": "http://www.w3.org/1999/xhtml"}
+
+
+def _tables(root):
+    """Each table of a page as (header, rows) of cell texts."""
+    out = []
+    for table in root.iterfind(".//h:table", NS):
+        header = [th.text for th in table.iterfind(".//h:th", NS)]
+        rows = [[td.text for td in tr.iterfind("h:td", NS)]
+                for tr in table.iterfind(".//h:tbody/h:tr", NS)]
+        out.append((header, rows))
+    return out
+
+
+def test_report_names_the_study_lists_the_runs_and_shows_units_with_superscripts(demo_folder):
+    html = (demo_folder / "report.html").read_text(encoding="utf-8")
+    root = parse(html)
+    assert root.find(".//h:title", NS).text == "Kinetics report: thiol-acrylate cure, 25 degC"
+    tables = _tables(root)
+    runs = next(rows for header, rows in tables if header[0] == "run" and "points" in header)
+    header = next(h for h, rows in tables if rows is runs)
+    assert header == ["run", "[thiol]₀ (mM)", "[acrylate]₀ (mM)", "[amine]₀ (mM)",
+                      "temperature", "points", "measured"]
+    assert [r[0] for r in runs] == ["r1", "r2", "r3", "r4", "r5", "r6"]
+    assert runs[1][1:4] == ["100", "60", "5"] and runs[1][5:] == ["50", "thiol, adduct"]
+    assert runs[0][4] == "298.15 K (25.0 °C)"
+    # units: superscripts on the page, plain text in the JSON beside it
+    assert "mM⁻¹·⁵ min⁻¹" in html and "^-" not in html
+    assert json.loads((demo_folder / "result.json").read_text())["parameters"]["k"]["unit"] \
+        == "mM^-1.5 min^-1"
+
+
+def test_interval_columns_only_for_analyses_that_were_run(demo_folder, tmp_path):
+    # no posterior in this folder: no profile or posterior column of "–"
+    root = parse((demo_folder / "report.html").read_text(encoding="utf-8"))
+    header, rows = next(t for t in _tables(root) if t[0][0] == "parameter")
+    assert header == ["parameter", "estimate", "standard error", "95 % (covariance)", "unit"]
+    data = json.loads((demo_folder / "result.json").read_text())
+    k = data["parameters"]["k"]
+    assert rows[0][3] == format_interval(k["ci95"], k["stderr"])      # "1.369e-04 – 1.609e-04"
+    assert rows[0][3] == f"{k['ci95'][0]:.3e} – {k['ci95'][1]:.3e}"
+    # the weighted fit says χ²
+    stats = next(t for t in _tables(root) if t[0][:2] == ["N", "p"])
+    assert stats[0][2] == "χ² (weighted)"
+
+
+def test_an_unweighted_report_names_the_residual_sum_of_squares(tmp_path):
+    from conftest import MODELS
+
+    from kinfit.estimation.least_squares import fit
+    from kinfit.inputs.experiment import load_experiment
+    from kinfit.inputs.mechanism import load_mechanism
+    from kinfit.output.fit import write_fit
+
+    (tmp_path / "e.toml").write_text('name = "decay study"\n[units]\ntime = "min"\n'
+                                     'concentration = "mM"\n[[runs]]\nname = "a"\n'
+                                     'file = "a.csv"\ninitial = { A = 1 }\n')
+    (tmp_path / "a.csv").write_text("time,A\n0,1\n5,0.61\n10,0.37\n20,0.14\n")
+    result = fit(load_experiment(tmp_path / "e.toml"),
+                 load_mechanism(MODELS / "first_order.toml"), starts=1)
+    write_fit(tmp_path / "out", result)
+    root = parse(build_report(tmp_path / "out").read_text(encoding="utf-8"))
+    header, rows = next(t for t in _tables(root) if t[0][:2] == ["N", "p"])
+    assert header[2:4] == ["residual sum of squares (mM²)", "σ̂ (mM)"]
+    assert "χ²" not in "".join(header)
+    assert root.find(".//h:title", NS).text == "Kinetics report: decay study"
+
+
+@pytest.fixture(scope="module")
+def ranking_folder(tmp_path_factory, small_ranking):
+    from kinfit.output.ranking import write_ranking
+
+    comparison, _, _ = small_ranking
+    out = tmp_path_factory.mktemp("ranked") / "out"
+    write_ranking(out, comparison)
+    build_report(out)
+    return out, comparison
+
+
+def test_ranking_report_names_the_winner_and_carries_its_fit(ranking_folder):
+    out, comparison = ranking_folder
+    html = (out / "report.html").read_text(encoding="utf-8")
+    root = parse(html)
+    assert root.find(".//h:title", NS).text == f"Ranking of candidate rate laws: " \
+                                                 f"{comparison.best.fit.experiment.name}"
+    # the winner (orders m = 1, n = 2 fixed) written out, with k ± its interval and unit
+    laws = [span.text for span in root.iterfind(".//h:span[@class='law']", NS)]
+    assert "A + B -> P:  rate = k [A] [B]²" in laws
+    fit = comparison.best.fit
+    k, se = fit.values["k"], fit.stderr["k"]
+    lo, hi = fit.interval("k")
+    assert f"k = {format_value(k, se)} M⁻² s⁻¹ (95 % interval {format_interval((lo, hi), se)})" \
+        in html
+    headings = [h.text for h in root.iterfind(".//h:h3", NS)]
+    assert any(h.startswith(f"Best supported: {comparison.best.name} (Akaike weight")
+               for h in headings) and comparison.best.label == "m=1, n=2"
+    assert "Nested pairs: F-test and likelihood ratio" in headings
+    assert "Model-averaged parameters" in headings
+    # the winner's parameter table, runs and fit figures (from best/)
+    headers = [h for h, _ in _tables(root)]
+    assert ["parameter", "value ± standard error", "95 % interval (covariance)", "unit", "role",
+            "note"] in headers
+    assert any(h[:2] == ["smaller", "larger"] for h in headers)
+    assert any(h[0] == "run" and "points" in h for h in headers)
+    captions = [c.text for c in root.iterfind(".//h:figcaption", NS)]
+    assert any(c.startswith("Each run's data (points) with the global fit") for c in captions)
+    # best/ has its own report, titled for the study
+    best = parse((out / "best" / "report.html").read_text(encoding="utf-8"))
+    assert "best-supported candidate" in best.find(".//h:title", NS).text
+    assert {h.text for h in best.iterfind(".//h:h2", NS)} >= {"Summary", "Parameters"}
+
+
+def test_each_warning_appears_once(tmp_path, demo_folder):
+    folder = tmp_path / "copy"
+    shutil.copytree(demo_folder, folder)
+    text = "the same warning from two results"
+    for name in ("result.json", "ranking.json"):
+        data = json.loads((folder / name).read_text(encoding="utf-8"))
+        data["warnings"] = [text, text]
+        (folder / name).write_text(json.dumps(data), encoding="utf-8")
+    html = build_report(folder).read_text(encoding="utf-8")
+    assert html.count(text) == 1

@@ -12,7 +12,11 @@ def test_notebook_tables_and_figures(result):
 
     html = fit_html(result)
     root = ET.fromstring(f"<div>{html}</div>")        # well-formed markup
-    assert len(root.findall("table")) == 3 and "s^-1" in html
+    assert len(root.findall("table")) == 3 and "s⁻¹" in html and "s^-1" not in html
+    # four points, noise not declared: the residual sum of squares with its unit, not χ²
+    header = [th.text for th in root.findall("table")[2].iter("th")]
+    assert header[2] == "residual sum of squares (M²)" and header[3] == "σ̂ (M)"
+    assert "χ²" not in html
     figs = kinfit.make_figures(result)
     assert set(figs) == {"fit", "residuals"} and figs["fit"].axes
 

@@ -40,3 +40,21 @@ def test_write_ranking(small_ranking, tmp_path):
     assert list(table["note"]) == [r.note for r in comparison.cross_check.initial_rates.rates]
     assert json.loads((tmp_path / "out" / "best" / "result.json").read_text())["schema"] \
         == "kinfit.result/1"
+
+
+def test_ranking_of_unweighted_fits_shows_the_residual_sum_of_squares(result):
+    # no declared noise: the column is the residual sum of squares with its unit, not χ²
+    from conftest import MODELS
+
+    from kinfit.analysis.ranking import compare
+    from kinfit.estimation.least_squares import fit
+    from kinfit.inputs.mechanism import load_mechanism
+    from kinfit.output.notebook import ranking_html
+    from kinfit.output.ranking import format_ranking
+
+    other = fit(result.experiment, load_mechanism(MODELS / "zero_order.toml"), starts=1)
+    comparison = compare([result, other])
+    header = next(line for line in format_ranking(comparison).splitlines() if "ΔAICc" in line)
+    assert header.split()[:5] == ["#", "candidate", "p", "RSS", "(M^2)"]
+    assert "χ²" not in format_ranking(comparison)
+    assert "residual sum of squares (M²)" in ranking_html(comparison)

@@ -28,3 +28,13 @@ def test_signal_summary_and_files():
     rows = files["spectra.csv"].splitlines()
     assert len(rows) == 72
     assert json.loads(json.dumps(result.to_dict()))["signals"]["reduced"] is True
+    # residual maps are observed − fitted, like every residual kinfit writes
+    import io
+
+    import numpy as np
+
+    run = result.experiment.run("r1")
+    spectra = result.signals.spectra
+    table = np.loadtxt(io.StringIO(files["residual_map_r1.csv"]), delimiter=",", skiprows=1)
+    expected = run.spectrum.values - spectra.fitted[spectra.runs.index("r1")]
+    np.testing.assert_allclose(table[:, 1:], expected, rtol=1e-5, atol=1e-9)   # 6 digits

@@ -33,3 +33,21 @@ def test_temperature_summary_and_files(tmp_path, arrhenius_study):
     written = write_fit(tmp_path / "out", result, extra_files=files, extra_summary=text)
     assert {"temperature.json", "arrhenius.png", "eyring.svg"} <= {p.name for p in written}
     assert "Caution (temperature)" in (tmp_path / "out" / "summary.txt").read_text()
+
+
+def test_interval_columns_only_for_analyses_that_were_run(arrhenius_study):
+    from dataclasses import replace
+
+    from kinfit.analysis.activation import activation_parameters
+    from kinfit.output.temperature import format_activation
+
+    acts = activation_parameters(arrhenius_study["result"])
+    header = next(line for line in format_activation(acts).splitlines()
+                  if line.strip().startswith("quantity"))
+    assert header.split()[-3:] == ["95", "%", "interval"]      # no profile, no posterior
+    # with a profile interval on one quantity, its column appears
+    est = [replace(e, profile_interval=(1.0, 2.0)) if i == 0 else e
+           for i, e in enumerate(acts[0].estimates)]
+    text = format_activation([replace(acts[0], estimates=tuple(est))])
+    header = next(line for line in text.splitlines() if line.strip().startswith("quantity"))
+    assert header.split()[-1] == "profile"
