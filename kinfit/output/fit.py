@@ -69,6 +69,9 @@ def _statistics_line(result):
             result.signals.unit or "(signal units)")
     noise = ("declared noise" if result.noise_declared
              else f"noise estimated from the fit: σ = {result.sigma:.3g} {noise_unit}")
+    if result.noise_levels:
+        noise = "σ of each species estimated: " + ", ".join(
+            f"{s} {v:.3g}" for s, v in result.noise_levels.items()) + f" {noise_unit}"
     return (f"Fit: χ² = {result.chi2:.6g}, N = {result.n_points}, p = {result.n_free}, "
             f"χ²/(N−p) = {result.reduced_chi2:.3g} ({noise})")
 
