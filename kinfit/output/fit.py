@@ -94,13 +94,14 @@ def curves_csv(result):
     return csv_text(("run", "time", *result.mechanism.species), rows)
 
 
-def fit_bundle(result, extra=None, extra_summary=None, provenance=None):
+def fit_bundle(result, extra=None, extra_summary=None, provenance=None, basis=None):
     """The files of a fit's output folder, computed but not written.
 
     Files, in order: ``fit.png``/``fit.svg`` (data and fitted curves),
     ``residuals.png``/``.svg``, the `extra` files, ``provenance.json``
     (when given), ``summary.txt``, ``fitted_curves.csv`` and ``result.json``
-    (schema ``kinfit.result/1``: :meth:`FitResult.to_dict`).
+    (schema ``kinfit.result/1``: :meth:`FitResult.to_dict`, and the
+    prediction basis that ``kinfit simulate --fit`` reads).
 
     Parameters
     ----------
@@ -112,12 +113,16 @@ def fit_bundle(result, extra=None, extra_summary=None, provenance=None):
         Text appended to ``summary.txt``.
     provenance : dict, optional
         See :func:`kinfit.output.provenance.collect`.
+    basis : PredictionBasis, optional
+        Written as ``prediction_basis`` (see
+        :func:`kinfit.inputs.fit_basis.basis_to_dict`; null when not given).
 
     Returns
     -------
     Bundle
     """
     from kinfit.figures.fit import plot_residuals, plot_traces
+    from kinfit.inputs.fit_basis import basis_to_dict
 
     files = figure_files({"fit": plot_traces(result), "residuals": plot_residuals(result)})
     files = files | Bundle(extra)
@@ -127,7 +132,9 @@ def fit_bundle(result, extra=None, extra_summary=None, provenance=None):
     if extra_summary:
         summary += "\n\n" + extra_summary
     return files | {"summary.txt": summary + "\n", "fitted_curves.csv": curves_csv(result),
-                    "result.json": schema_json("result", result.to_dict())}
+                    "result.json": schema_json("result", {
+                        **result.to_dict(),
+                        "prediction_basis": None if basis is None else basis_to_dict(basis)})}
 
 
 def write_fit(out_dir, result, extra_files=None, extra_summary=None, provenance=None):
