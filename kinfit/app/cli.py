@@ -59,8 +59,9 @@ NOISE = ("auto", "declared", "per-species", "shared")
 MOVES = ("de", "stretch")
 CRITERIA = ("aicc", "aic", "bic")
 
-OVERWRITE_HELP = ("Replace the results of an earlier run in --out (they are removed first; "
-                  "other files stay). Without it such a folder is refused.")
+OVERWRITE_HELP = ("Replace the results of an earlier run in --out: the new files replace "
+                  "theirs and the rest of them are removed; other files stay. Without it "
+                  "such a folder is refused.")
 
 
 def _show_version(value: bool):
