@@ -5,7 +5,7 @@ Not collected by pytest (the default run has a smaller, in-process version:
 
     python tests/benchmarks/study_install.py
 
-Builds a wheel of this checkout (``pip wheel --no-deps``; pip fetches the
+Builds a wheel of a copy of this checkout (``pip wheel --no-deps``; pip fetches the
 build backend unless ``--no-build-isolation`` is given and setuptools and
 wheel are installed), installs it with ``pip install --no-deps --target``
 into a temporary folder, and runs, in an empty folder outside the checkout
@@ -23,6 +23,7 @@ from __future__ import annotations
 import argparse
 import os
 import re
+import shutil
 import subprocess
 import sys
 import tempfile
@@ -57,8 +58,14 @@ def main():
     args = parser.parse_args()
     tmp = Path(tempfile.mkdtemp(prefix="kinfit-install-"))
     build = ["--no-build-isolation"] if args.no_build_isolation else []
+    source = tmp / "source"        # a copy, so that the build leaves the checkout alone
+    source.mkdir()
+    for name in ("pyproject.toml", "README.md"):
+        shutil.copy(ROOT / name, source)
+    shutil.copytree(ROOT / "kinfit", source / "kinfit",
+                    ignore=shutil.ignore_patterns("__pycache__", "*.pyc"))
     subprocess.run([sys.executable, "-m", "pip", "wheel", "--no-deps", *build, "-w",
-                    str(tmp / "wheel"), str(ROOT)], check=True)
+                    str(tmp / "wheel"), str(source)], check=True)
     wheel = next((tmp / "wheel").glob("kinfit-*.whl"))
     subprocess.run([sys.executable, "-m", "pip", "install", "--no-deps", "--target",
                     str(tmp / "site"), str(wheel)], check=True)
