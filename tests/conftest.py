@@ -21,8 +21,9 @@ settings.register_profile("long", max_examples=10_000, deadline=None,
 settings.load_profile("default")
 
 ROOT = Path(__file__).resolve().parent.parent
-DEMO = ROOT / "demo"
-MODELS = ROOT / "models"
+TEMPLATES = ROOT / "kinfit" / "app" / "templates"   # models and demo studies ship in the package
+DEMO = TEMPLATES / "demo"
+MODELS = TEMPLATES / "models"
 DATA = Path(__file__).resolve().parent / "data"
 
 

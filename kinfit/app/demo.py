@@ -12,9 +12,10 @@ and followed thiol and adduct by in-line HPLC every 5 minutes for 2 hours.
 
 The data are simulated from the true parameters in :data:`TRUTH` with
 Gaussian noise of σ = sqrt(0.3² + (0.015 y)²) mM (seed :data:`SEED`), and
-written by :func:`write_inputs`. ``demo/make_demo_data.py`` calls it to
-refresh the copy kept in the repository; ``kinfit demo`` calls it to make a
-fresh copy in its output folder, then fits and reports.
+written by :func:`write_inputs`. ``templates/demo/make_demo_data.py`` calls it
+to refresh the copy shipped in the package (copied out by ``kinfit
+templates``); ``kinfit demo`` calls it to make a fresh copy in its output
+folder, then fits and reports.
 """
 
 from __future__ import annotations

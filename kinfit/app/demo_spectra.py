@@ -20,8 +20,8 @@ in two ways:
 
 The data are simulated from :data:`TRUTH` with Gaussian noise (σ =
 :data:`NOISE` absorbance units, seed :data:`SEED`) and written by
-:func:`write_inputs`; ``demo/spectra/make_data.py`` refreshes the copy kept
-in the repository and ``kinfit demo`` writes a fresh copy, fits both
+:func:`write_inputs`; ``templates/demo/spectra/make_data.py`` refreshes
+the copy shipped in the package and ``kinfit demo`` writes a fresh copy, fits both
 experiments and compares them with the truth.
 """
 

@@ -160,15 +160,16 @@ def fit_folder(result, *, two_stage="free", seed=DEFAULT_SEED, wavelengths=None,
     -------
     FitFolder
     """
+    from kinfit.analysis.prediction import basis_from_fit
     from kinfit.output.fit import fit_bundle, format_fit
 
     extra, signals, temperature = Bundle(), None, None
+    basis = basis_from_fit(result)
     if result.mechanism.temperature is not None:
-        from kinfit.analysis.prediction import basis_from_fit
         from kinfit.output.temperature import format_activation, temperature_bundle
 
         activations, analysis = _temperature_analysis(result, two_stage, seed, posterior)
-        extra = temperature_bundle(activations, analysis, basis_from_fit(result))
+        extra = temperature_bundle(activations, analysis, basis)
         temperature = format_activation(activations, analysis)
     if result.signals is not None:
         from kinfit.output.signals import format_signals, signals_bundle
@@ -176,13 +177,15 @@ def fit_folder(result, *, two_stage="free", seed=DEFAULT_SEED, wavelengths=None,
         extra = extra | signals_bundle(result, wavelengths)
         signals = format_signals(result, wavelengths)
     parts = "\n\n".join(text for text in (signals, temperature) if text) or None
-    bundle = fit_bundle(result, extra=extra, extra_summary=parts, provenance=provenance)
+    bundle = fit_bundle(result, extra=extra, extra_summary=parts, provenance=provenance,
+                        basis=basis)
     summary = format_fit(result) + (f"\n\n{parts}" if parts else "")
     return FitFolder(bundle=bundle, summary=summary, signals=signals, temperature=temperature)
 
 
 def fit_workflow(experiment, mechanism, *, starts=DEFAULT_STARTS, seed=DEFAULT_SEED,
-                 two_stage="free", components=None, wavelengths=None, command=None):
+                 two_stage="free", components=None, wavelengths=None, noise="auto",
+                 command=None):
     """Fit a model to every run of an experiment; the ``kinfit fit`` command.
 
     Parameters are those of :func:`kinfit.fit` and :func:`fit_folder`;
@@ -195,10 +198,11 @@ def fit_workflow(experiment, mechanism, *, starts=DEFAULT_STARTS, seed=DEFAULT_S
     """
     from kinfit.estimation.least_squares import fit
 
-    result = fit(experiment, mechanism, starts=starts, seed=seed, components=components)
+    result = fit(experiment, mechanism, starts=starts, seed=seed, components=components,
+                 noise=noise)
     folder = fit_folder(result, two_stage=two_stage, seed=seed, wavelengths=wavelengths,
-                        provenance=provenance_of(experiment, mechanism, seed, {"starts": starts},
-                                                 command))
+                        provenance=provenance_of(experiment, mechanism, seed,
+                                                 {"starts": starts, "noise": noise}, command))
     return Outcome(result=result, bundle=folder.bundle, summary=folder.summary)
 
 
@@ -327,8 +331,8 @@ def prediction_basis(mechanism, units, fit_file=None, overrides=None):
     units : Units
         Of a prediction from the model's values.
     fit_file : path, optional
-        ``temperature.json`` written by ``kinfit fit``; its schema version
-        is checked first (see :mod:`kinfit.core.schema`).
+        ``result.json`` (or ``temperature.json``) written by ``kinfit fit``;
+        its schema version is checked first (see :mod:`kinfit.core.schema`).
     overrides : dict of str to float, optional
         Parameter values replacing the model file's (without `fit_file`).
 
@@ -341,8 +345,8 @@ def prediction_basis(mechanism, units, fit_file=None, overrides=None):
 
     if fit_file is not None:
         basis = load_basis(fit_file, mechanism)
-        return basis, (f"Using the fit in {fit_file} (units {basis.units.time} and "
-                       f"{basis.units.concentration})")
+        return basis, (f"Using the fit in {fit_file}: times in {basis.units.time}, "
+                       f"concentrations in {basis.units.concentration}")
     spec = mechanism.temperature
     basis = PredictionBasis(mechanism=mechanism, values=mechanism.values(overrides),
                             free_names=(), covariance=None,

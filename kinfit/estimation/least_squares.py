@@ -53,6 +53,13 @@ from kinfit.estimation.likelihood import (
     information_criteria,
 )
 from kinfit.estimation.linear_unknowns import resolve_signals
+from kinfit.estimation.noise import (
+    MAX_PASSES,
+    converged,
+    noise_experiment,
+    resolved_mode,
+    species_levels,
+)
 from kinfit.estimation.residual_checks import check_residuals
 from kinfit.estimation.run_warnings import run_warnings
 from kinfit.estimation.scale import ScaledProblem, fit_scale
@@ -89,13 +96,22 @@ class ProblemSettings:
         For full-spectrum data, the override of the experiment's
         ``components`` ("auto", "all" or a number); ``None`` keeps the
         experiment's.
+    noise : str
+        A mode of :data:`kinfit.estimation.noise.FIT_NOISE_MODES`.
+    noise_levels : tuple of (str, float)
+        For ``per-species``: the σ of each species the problem is weighted with.
     """
 
     method: str = "auto"
     components: int | str | None = None
+    noise: str = "auto"
+    noise_levels: tuple[tuple[str, float], ...] = ()
 
     def build(self, mechanism: Mechanism, experiment: Experiment) -> Problem:
         """The :class:`~kinfit.numerics.problem.Problem` of `mechanism` and `experiment`."""
+        if self.noise != "auto":
+            experiment = noise_experiment(experiment, resolved_mode(self.noise, experiment),
+                                          dict(self.noise_levels))
         return build_problem(mechanism, experiment, method=self.method,
                              components=self.components)
 
@@ -129,8 +145,15 @@ class FitResult:
     chi2 : float
         Sum of squared residuals.
     sigma : float or None
-        Estimated noise standard deviation sqrt(χ²/(N - p)) when not declared.
+        Estimated noise standard deviation sqrt(χ²/(N - p)) when one level is
+        shared by all points.
     noise_declared : bool
+        Whether the residuals are divided by a σ of each point (declared
+        noise, or σ estimated per species).
+    noise : {"declared", "shared", "per-species"}
+        How the noise was treated (see :mod:`kinfit.estimation.noise`).
+    noise_levels : dict of str to float or None
+        With ``per-species``: the estimated σ of each species.
     log_likelihood, aic, aicc, bic : float
         See :mod:`kinfit.estimation.likelihood` for the conventions.
     overall_orders : dict of str to float or None
@@ -198,6 +221,8 @@ class FitResult:
     signals: SignalFit | None = None
     residual_checks: tuple[TraceCheck, ...] = ()
     problem_settings: ProblemSettings = ProblemSettings()
+    noise: str = "shared"
+    noise_levels: dict[str, float] | None = None
 
     @property
     def reduced_chi2(self):
@@ -295,8 +320,9 @@ class FitResult:
             "n_params": self.n_free,
             "chisqr": self.chi2,
             "reduced_chisqr": self.reduced_chi2,
-            "noise": "declared" if self.noise_declared else "estimated",
+            "noise": {"shared": "estimated"}.get(self.noise, self.noise),
             "sigma": self.sigma,
+            "noise_levels": self.noise_levels,
             "log_likelihood": self.log_likelihood,
             "aic": self.aic,
             "aicc": self.aicc,
@@ -352,7 +378,7 @@ def _run_conditions(run):
 # -------------------------------------------------------------------- fit
 
 def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="auto",
-        max_evaluations=None, components=None):
+        max_evaluations=None, components=None, noise="auto"):
     """Fit `mechanism` to all runs of `experiment` at once.
 
     Parameters
@@ -372,6 +398,11 @@ def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="auto",
     components : int or str, optional
         For full-spectrum data, overrides the experiment's ``components``
         ("auto", "all" or a number of singular vectors to fit).
+    noise : {"auto", "declared", "shared", "per-species"}
+        How measurement noise is treated (see :mod:`kinfit.estimation.noise`):
+        the declared noise if any, else one level shared by all points
+        ("auto"); only the declared; one shared level estimated; or one
+        level per species estimated.
 
     Returns
     -------
@@ -379,7 +410,9 @@ def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="auto",
     """
     if not isinstance(starts, int) or starts < 1:
         raise KinfitError(f"starts must be a whole number of at least 1, got {starts!r}")
-    settings = ProblemSettings(method=method, components=components)
+    mode = resolved_mode(noise, experiment)
+    settings = ProblemSettings(method=method, components=components,
+                               noise="shared" if mode == "per-species" else noise)
     problem = settings.build(mechanism, experiment)
     scale = fit_scale(problem)
     evaluator = ScaledProblem(problem, scale)
@@ -398,8 +431,41 @@ def fit(experiment, mechanism, starts=DEFAULT_STARTS, seed=0, method="auto",
     u_best, chi2_best, success, message, failed = best
     tol = 1e-6 * max(chi2_best, 1e-300) + 1e-12
     at_best = sum(1 for o in outcomes if o[1] <= chi2_best + tol)
+    if mode == "per-species":
+        evaluator, settings, (u_best, _, success, message, failed) = _per_species(
+            evaluator, settings, u_best, max_evaluations)
     return _result(evaluator, u_best, success, message, len(outcomes), at_best, failed,
                    settings)
+
+
+def _deviations(evaluator, u):
+    """Model − data at `u`, in the data's units."""
+    res = evaluator.residuals(u)[0]
+    sigma = evaluator.problem.observation.sigma
+    return res if sigma is None else res * sigma
+
+
+def _per_species(evaluator, settings, u, max_evaluations):
+    """Alternate weighted fits and σ_s updates until the σ_s settle (see
+    :mod:`kinfit.estimation.noise`); the last fit's evaluator, settings and outcome."""
+    problem = evaluator.problem
+    mechanism, experiment = problem.mechanism, problem.experiment
+    n_free, source = count_parameters(problem), experiment.source
+    levels = species_levels(problem.observation, _deviations(evaluator, u), n_free, source)
+    for _ in range(MAX_PASSES):
+        settings = ProblemSettings(method=settings.method, components=settings.components,
+                                   noise="per-species", noise_levels=tuple(levels.items()))
+        problem = settings.build(mechanism, experiment)
+        evaluator = ScaledProblem(problem, fit_scale(problem))
+        outcome = local_fit(evaluator, u, max_evaluations)
+        u = outcome[0]
+        new = species_levels(problem.observation, _deviations(evaluator, u), n_free, source)
+        if converged(levels, new):
+            return evaluator, settings, outcome
+        levels = new
+    u, chi2, _, message, failed = outcome
+    return evaluator, settings, (u, chi2, False, f"the noise levels per species did not "
+                                 f"settle in {MAX_PASSES} passes ({message})", failed)
 
 
 def _start_points(evaluator, starts, seed):
@@ -484,7 +550,10 @@ def _result(evaluator, u, success, message, n_starts, at_best, failed, settings)
                                tally=True),
         at_bounds=at_bounds,
         bounds={p.name: (p.min, p.max, p.vary) for p in problem.parameters}, signals=signals,
-        residual_checks=tuple(check_residuals(exp, res)), problem_settings=settings)
+        residual_checks=tuple(check_residuals(exp, res)), problem_settings=settings,
+        noise=("per-species" if settings.noise == "per-species"
+               else "declared" if problem.sigma_known else "shared"),
+        noise_levels=dict(settings.noise_levels) or None)
 
 
 def _statistics(problem, res):

@@ -4,8 +4,10 @@ A :class:`PredictionBasis` is what a prediction needs from a fit: the model,
 its parameters at the fitted values, the covariance of those fitted, the
 reference temperature of the temperature laws, the conditions the runs
 covered (:class:`FittedRange`) and the units. ``kinfit fit`` writes it into
-``temperature.json`` (:func:`basis_to_dict`) so that ``kinfit simulate --fit``
-can predict without refitting (:func:`load_basis`). Built from a fit by
+``result.json`` (and, for a temperature-dependent model, ``temperature.json``)
+as ``prediction_basis`` (:func:`basis_to_dict`) so that ``kinfit simulate
+--fit`` can predict without refitting, in the fit's units and with its
+covariance (:func:`load_basis`). Built from a fit by
 :func:`kinfit.analysis.prediction.basis_from_fit`.
 """
 
@@ -84,7 +86,8 @@ class PredictionBasis:
 
 
 def basis_to_dict(basis):
-    """The basis as plain Python (the ``prediction_basis`` entry of temperature.json).
+    """The basis as plain Python (the ``prediction_basis`` entry of result.json and
+    temperature.json).
 
     Keys: ``model``, ``parameters`` (name to value), ``free`` (names),
     ``covariance`` (list of rows, natural scale, or null),
@@ -103,8 +106,21 @@ def basis_to_dict(basis):
     }
 
 
+def _kind(data, path):
+    """Which of kinfit's files `data` is: ``result`` or ``temperature`` (a file written
+    before schema tags were recorded passes as either)."""
+    tag = data.get("schema") if isinstance(data, dict) else None
+    if tag is None:
+        return "result"
+    for kind in ("result", "temperature"):
+        if str(tag).split("/")[0] == f"kinfit.{kind}":
+            return kind
+    raise KinfitError(f"--fit {path}: holds {tag!r}, not a fit; give the result.json (or "
+                      f"temperature.json) written by kinfit fit")
+
+
 def load_basis(path, mechanism):
-    """Read the prediction basis saved with a fit (``temperature.json``).
+    """Read the prediction basis saved with a fit (``result.json`` or ``temperature.json``).
 
     Parameters
     ----------
@@ -124,12 +140,16 @@ def load_basis(path, mechanism):
     """
     path = Path(path)
     if not path.is_file():
-        raise KinfitError(f"--fit {path}: file not found; give the temperature.json written "
-                          f"by kinfit fit")
+        raise KinfitError(f"--fit {path}: file not found; give the result.json written by "
+                          f"kinfit fit")
     try:
-        data = check_schema(json.loads(decode(path.read_bytes(), str(path))), "temperature",
-                            f"--fit {path}")
-        raw = data["prediction_basis"]
+        data = json.loads(decode(path.read_bytes(), str(path)))
+        data = check_schema(data, _kind(data, path), f"--fit {path}")
+        raw = data.get("prediction_basis") if isinstance(data, dict) else None
+        if raw is None:
+            raise KinfitError(f"--fit {path}: holds no prediction basis (written by an "
+                              f"earlier kinfit, or without one); fit again with kinfit fit "
+                              f"and give its result.json")
         values = {str(k): float(v) for k, v in raw["parameters"].items()}
         free = tuple(str(n) for n in raw["free"])
         cov = None if raw["covariance"] is None else np.asarray(raw["covariance"], dtype=float)

@@ -90,6 +90,11 @@ def interval_text_of(result):
 def statistics_text(result):
     """The goodness-of-fit sentence: χ² for a weighted fit, else RSS with its unit and σ̂."""
     n, p = result.n_points, result.n_free
+    if result.noise_levels:        # --noise per-species: one estimated σ per species
+        levels = ", ".join(f"{s} {v:.3g}" for s, v in result.noise_levels.items())
+        return (f"Fit: σ of each species estimated: {levels} {result.residual_unit or ''}; χ² = "
+                f"{result.chi2:.6g} weighted by them, N = {n}, p = {p}, "
+                f"χ²/(N−p) = {result.reduced_chi2:.3g}")
     if result.noise_declared:
         return (f"Fit: χ² = {result.chi2:.6g} (weighted by the declared noise), N = {n}, "
                 f"p = {p}, χ²/(N−p) = {result.reduced_chi2:.3g}")
@@ -214,7 +219,7 @@ def points_csv(result):
     return csv_text(header + (["unit"] if unit is None else []), rows)
 
 
-def fit_bundle(result, extra=None, extra_summary=None, provenance=None):
+def fit_bundle(result, extra=None, extra_summary=None, provenance=None, basis=None):
     """The files of a fit's output folder, computed but not written.
 
     Files, in order: ``fit.png``/``fit.svg`` (data and fitted curves),
@@ -222,7 +227,8 @@ def fit_bundle(result, extra=None, extra_summary=None, provenance=None):
     (when given), ``summary.txt``, ``fitted_curves.csv``, ``parameters.csv``
     (:func:`parameters_csv`), ``points.csv`` (:func:`points_csv`; left out when
     every run is full spectra, whose residuals are in ``residual_map_*.csv``)
-    and ``result.json`` (schema ``kinfit.result/1``: :meth:`FitResult.to_dict`).
+    and ``result.json`` (schema ``kinfit.result/1``: :meth:`FitResult.to_dict`,
+    and the prediction basis that ``kinfit simulate --fit`` reads).
 
     Parameters
     ----------
@@ -234,12 +240,16 @@ def fit_bundle(result, extra=None, extra_summary=None, provenance=None):
         Text appended to ``summary.txt``.
     provenance : dict, optional
         See :func:`kinfit.output.provenance.collect`.
+    basis : PredictionBasis, optional
+        Written as ``prediction_basis`` (see
+        :func:`kinfit.inputs.fit_basis.basis_to_dict`; null when not given).
 
     Returns
     -------
     Bundle
     """
     from kinfit.figures.fit import plot_residuals, plot_traces
+    from kinfit.inputs.fit_basis import basis_to_dict
 
     files = figure_files({"fit": plot_traces(result), "residuals": plot_residuals(result)})
     files = files | Bundle(extra)
@@ -252,7 +262,9 @@ def fit_bundle(result, extra=None, extra_summary=None, provenance=None):
                      "parameters.csv": parameters_csv(result)}
     if any(run.traces for run in result.experiment.runs):
         files = files | {"points.csv": points_csv(result)}
-    return files | {"result.json": schema_json("result", result.to_dict())}
+    return files | {"result.json": schema_json("result", {
+        **result.to_dict(),
+        "prediction_basis": None if basis is None else basis_to_dict(basis)})}
 
 
 def write_fit(out_dir, result, extra_files=None, extra_summary=None, provenance=None):

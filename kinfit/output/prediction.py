@@ -71,7 +71,8 @@ def prediction_bundle(prediction, title=None):
     ``prediction.json``.
 
     ``simulation.csv`` has a time column, one column per species and, with a
-    band, ``<species>_lower`` and ``<species>_upper``. ``prediction.json``
+    band, ``<species>_lower`` and ``<species>_upper``, each header with its
+    unit (``time (min)``, ``A (mM)``). ``prediction.json``
     (schema ``kinfit.prediction/1``) holds :meth:`Prediction.to_dict` (with
     ``extrapolated`` and ``flags``) and the cautions.
 
@@ -81,11 +82,12 @@ def prediction_bundle(prediction, title=None):
     """
     from kinfit.figures.temperature import plot_prediction
 
-    header = ["time", *prediction.species]
+    time, conc = _unit_labels(prediction.units)
+    header = [f"time{time}", *[f"{s}{conc}" for s in prediction.species]]
     columns = [prediction.times] + [prediction.conc[:, i] for i in range(len(prediction.species))]
     if prediction.lower is not None:
         for i, s in enumerate(prediction.species):
-            header += [f"{s}_lower", f"{s}_upper"]
+            header += [f"{s}_lower{conc}", f"{s}_upper{conc}"]
             columns += [prediction.lower[:, i], prediction.upper[:, i]]
     data = prediction.to_dict()
     data["cautions"] = (temperature_cautions(prediction.fitted_temperature)
@@ -95,8 +97,16 @@ def prediction_bundle(prediction, title=None):
             | {"prediction.json": schema_json("prediction", data)})
 
 
+def _unit_labels(units):
+    """`` (min)`` and `` (mM)`` for CSV headers; empty without units."""
+    if units is None:
+        return "", ""
+    return f" ({units.time})", f" ({units.concentration})"
+
+
 def simulation_bundle(trajectory, units=None, title=None):
-    """The files of a plain simulation: ``simulation.csv`` and ``simulation.png``/``.svg``.
+    """The files of a plain simulation: ``simulation.csv`` (headers with the units, as
+    for a prediction) and ``simulation.png``/``.svg``.
 
     Returns
     -------
@@ -106,6 +116,7 @@ def simulation_bundle(trajectory, units=None, title=None):
 
     conc = np.asarray(trajectory.conc)
     columns = [trajectory.times] + [conc[:, i] for i in range(conc.shape[1])]
-    return (Bundle({"simulation.csv": csv_text(["time", *trajectory.species],
-                                               _number_rows(columns))})
+    time, unit = _unit_labels(units)
+    header = [f"time{time}", *[f"{s}{unit}" for s in trajectory.species]]
+    return (Bundle({"simulation.csv": csv_text(header, _number_rows(columns))})
             | figure_files({"simulation": plot_trajectory(trajectory, units, title)}))

@@ -51,7 +51,13 @@ def test_fit_workflow_returns_the_fit_its_folder_and_its_summary(decay):
     assert outcome.bundle["summary.txt"] == outcome.summary + "\n"
     provenance = json.loads(outcome.bundle["provenance.json"])
     assert provenance["schema"] == "kinfit.provenance/1"
-    assert provenance["command"] == ["kinfit", "fit"] and provenance["settings"] == {"starts": 1}
+    assert provenance["command"] == ["kinfit", "fit"]
+    assert provenance["settings"] == {"starts": 1, "noise": "auto"}
+    # result.json carries what kinfit simulate --fit needs, in the fit's units
+    basis = json.loads(outcome.bundle["result.json"])["prediction_basis"]
+    assert basis["free"] == ["k"] and basis["parameters"]["k"] == outcome.result.values["k"]
+    assert basis["units"] == {"time": exp.units.time, "concentration": exp.units.concentration,
+                              "temperature": exp.units.temperature}
 
 
 def test_the_best_of_a_ranking_is_the_fit_folder_of_its_fit(tmp_path):

@@ -66,8 +66,8 @@ def main():
     with tempfile.TemporaryDirectory() as tmp:
         cases = {
             "demo (6 runs x 50 points, 4 parameters)": (
-                load_experiment(ROOT / "demo" / "experiment.toml"),
-                load_mechanism(ROOT / "demo" / "thiol_addition.toml")),
+                load_experiment(ROOT / "kinfit" / "app" / "templates" / "demo" / "experiment.toml"),
+                load_mechanism(ROOT / "kinfit" / "app" / "templates" / "demo" / "thiol_addition.toml")),
             "power law (6 runs x 120 points, 3 parameters)": power_law_case(Path(tmp)),
         }
         t0 = time.perf_counter()

@@ -60,7 +60,7 @@ def main():
     (folder / "e.toml").write_text('[data]\nfile = "traces.csv"\n' + "\n".join(runs))
     size = (folder / "traces.csv").stat().st_size / 2 ** 20
     out = subprocess.run([sys.executable, "-c", CHILD, str(folder / "e.toml"),
-                          str(ROOT / "models" / "first_order.toml")],
+                          str(ROOT / "kinfit" / "app" / "templates" / "models" / "first_order.toml")],
                          capture_output=True, text=True, check=True).stdout.split()
     n, load, mb_load, fit, k, se, mb = out
     print(f"{int(n):,} points ({size:.0f} MB of CSV), {args.runs} runs")

@@ -52,8 +52,8 @@ def main():
         cpus = len(os.sched_getaffinity(0))
     except AttributeError:
         cpus = os.cpu_count()
-    exp = load_experiment(ROOT / "demo" / "experiment.toml")
-    mech = load_mechanism(ROOT / "demo" / "thiol_addition.toml")
+    exp = load_experiment(ROOT / "kinfit" / "app" / "templates" / "demo" / "experiment.toml")
+    mech = load_mechanism(ROOT / "kinfit" / "app" / "templates" / "demo" / "thiol_addition.toml")
     print(f"CPUs available: {cpus}; load average: {os.getloadavg()[0]:.2f}")
 
     t = time.perf_counter()

@@ -303,11 +303,11 @@ def main():
 
     section("peak memory on the demo (fresh processes)")
     for label, code in (
-            ("fit", "import kinfit; e = kinfit.load_experiment('demo/experiment.toml'); "
-                    "m = kinfit.load_mechanism('demo/thiol_addition.toml'); kinfit.fit(e, m)"),
+            ("fit", "import kinfit; e = kinfit.load_experiment('kinfit/app/templates/demo/experiment.toml'); "
+                    "m = kinfit.load_mechanism('kinfit/app/templates/demo/thiol_addition.toml'); kinfit.fit(e, m)"),
             ("kinfit.sample, 32 x 2000", "import kinfit; "
-             "e = kinfit.load_experiment('demo/experiment.toml'); "
-             "m = kinfit.load_mechanism('demo/thiol_addition.toml'); "
+             "e = kinfit.load_experiment('kinfit/app/templates/demo/experiment.toml'); "
+             "m = kinfit.load_mechanism('kinfit/app/templates/demo/thiol_addition.toml'); "
              "kinfit.sample(e, m, walkers=32, steps=2000, seed=0)")):
         code += "; import resource; print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)"
         for _ in range(2):   # the first run may still compile (its memory is the compiler's)

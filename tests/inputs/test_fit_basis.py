@@ -30,7 +30,10 @@ def test_basis_round_trip(tmp_path, arrhenius_study):
 
 @pytest.mark.parametrize("text, message", [
     ("{", "line 1: not valid JSON"),
-    ('{"other": 1}', "not a prediction basis"),
+    ('{"other": 1}', "holds no prediction basis"),
+    ('{"schema": "kinfit.result/1", "prediction_basis": null}', "holds no prediction basis"),
+    ('{"schema": "kinfit.posterior/1"}', "holds 'kinfit.posterior/1', not a fit"),
+    ('{"schema": "kinfit.result/2"}', "schema 'kinfit.result/2' is not one this kinfit reads"),
     ('{"prediction_basis": {"parameters": {"x": 1}}}', "not a prediction basis"),
 ])
 def test_load_basis_errors(tmp_path, arrhenius_study, text, message):
@@ -40,6 +43,18 @@ def test_load_basis_errors(tmp_path, arrhenius_study, text, message):
         load_basis(path, arrhenius_study["mechanism"])
     with pytest.raises(KinfitError, match="file not found"):
         load_basis(tmp_path / "none.json", arrhenius_study["mechanism"])
+
+
+def test_a_fit_s_result_json_is_read_as_its_temperature_json(tmp_path, arrhenius_study):
+    result = arrhenius_study["result"]
+    basis = basis_from_fit(result)
+    for kind in ("result", "temperature"):
+        path = tmp_path / f"{kind}.json"
+        path.write_text(json.dumps({"schema": f"kinfit.{kind}/1",
+                                    "prediction_basis": basis_to_dict(basis)}))
+        loaded = load_basis(path, result.mechanism)
+        assert loaded.values == basis.values and loaded.units == basis.units
+        np.testing.assert_allclose(loaded.covariance, basis.covariance)
 
 
 def test_basis_of_another_model_is_refused(tmp_path, arrhenius_study, eyring_study):

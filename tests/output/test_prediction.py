@@ -20,6 +20,7 @@ def test_write_prediction(tmp_path, arrhenius_study):
     assert [p.name for p in written] == ["simulation.csv", "simulation.png", "simulation.svg",
                                          "prediction.json"]
     header = (tmp_path / "p" / "simulation.csv").read_text().splitlines()[0]
-    assert header == "time,A,P,A_lower,A_upper,P_lower,P_upper"
+    assert header == ("time (s),A (M),P (M),A_lower (M),A_upper (M),P_lower (M),"
+                      "P_upper (M)")
     data = json.loads((tmp_path / "p" / "prediction.json").read_text())
     assert data["extrapolated"] is True and "calorimetry" in data["cautions"]

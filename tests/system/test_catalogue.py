@@ -30,9 +30,11 @@ runner = CliRunner()
 
 
 def run_case(folder, out):
+    # --overwrite: the folder holds an earlier result, which good input replaces and bad
+    # input leaves alone
     return runner.invoke(app, ["fit", str(folder / "experiment.toml"), "--model",
                                str(folder / "model.toml"), "--out", str(out), "--starts", "1",
-                               "--no-report"])
+                               "--no-report", "--overwrite"])
 
 
 def test_catalogue_is_large_enough():

@@ -24,12 +24,26 @@ from kinfit.app.cli import app
 runner = CliRunner()
 
 
+COMMANDS = ([], ["fit"], ["simulate"], ["demo"], ["rank"], ["sample"], ["report"],
+            ["components"], ["templates"])
+
+
 def test_help_of_every_command_shows_an_example():
-    for command in ([], ["fit"], ["simulate"], ["demo"], ["rank"], ["sample"], ["report"],
-                    ["components"]):
+    for command in COMMANDS:
         result = runner.invoke(app, command + ["--help"])
         assert result.exit_code == 0
-        assert "Example:" in result.output and "kinfit " in result.output
+        assert "Example" in result.output and "kinfit " in result.output
+
+
+def _known_results(out):
+    """Every file kinfit wrote in the result folders of `out` is a result it knows by
+    name (so that the folder rule recognises and replaces it)."""
+    from kinfit.app.folders import RESULT_FOLDERS, earlier_results
+
+    written = {p for folder in RESULT_FOLDERS if (out / folder).is_dir()
+               for p in (out / folder).iterdir() if p.is_file()}
+    assert written and written == set(earlier_results(out)), sorted(
+        p.name for p in written - set(earlier_results(out)))
 
 
 def test_demo_command(tmp_path):
@@ -48,6 +62,9 @@ def test_demo_command(tmp_path):
                  "components.png"):
         assert (out / "spectrometer" / "spectra" / name).exists(), name
     assert (out / "inputs" / "spectrometer" / "absorbance_r1.txt").exists()
+    _known_results(out)
+    again = runner.invoke(app, ["demo", "--out", str(out)])      # refused before any work
+    assert again.exit_code == 2 and "already holds results of an earlier run" in again.output
 
 
 def test_fit_command_on_the_demo(tmp_path):
@@ -65,15 +82,19 @@ def test_simulate_command(tmp_path):
     out = tmp_path / "sim"
     result = runner.invoke(app, ["simulate", str(MODELS / "consecutive.toml"), "-i", "A=1",
                                  "--set", "k1=0.5", "--until", "20", "--points", "21",
+                                 "--time-unit", "min", "--concentration-unit", "mM",
                                  "--out", str(out)])
     assert result.exit_code == 0, result.output
+    assert "at t = 20 min:" in result.output and result.output.split("\n")[0].endswith(" mM")
     lines = (out / "simulation.csv").read_text().splitlines()
-    assert lines[0] == "time,A,B,C" and len(lines) == 22
+    assert lines[0] == "time (min),A (mM),B (mM),C (mM)" and len(lines) == 22
     assert (out / "simulation.png").exists()
+    _known_results(out)
 
 
 def test_simulate_bad_pairs(tmp_path):
     result = runner.invoke(app, ["simulate", str(MODELS / "first_order.toml"), "-i", "A:1",
+                                 "--time-unit", "s", "--concentration-unit", "M",
                                  "--out", str(tmp_path / "x")])
     assert result.exit_code == 2 and "expected NAME=NUMBER" in result.output
     assert not (tmp_path / "x").exists()
@@ -148,7 +169,8 @@ def test_bad_input_does_not_touch_an_existing_output_folder(tmp_path):
     out.mkdir()
     (out / "result.json").write_text("previous")
     result = runner.invoke(app, ["fit", str(tmp_path / "experiment.toml"), "--model",
-                                 str(tmp_path / "model.toml"), "--out", str(out)])
+                                 str(tmp_path / "model.toml"), "--out", str(out),
+                                 "--overwrite"])
     assert result.exit_code == 2
     assert (out / "result.json").read_text() == "previous"
     assert [p.name for p in out.iterdir()] == ["result.json"]
@@ -195,6 +217,7 @@ def test_fit_command_on_the_temperature_example(temperature_fit):
     assert abs(ea["value"] - 55.0) < 3 * ea["stderr"]
     assert data["activation"][0]["temperature_range_K"] == [288.15, 318.15]
     assert "Caution (temperature)" in (out / "summary.txt").read_text()
+    _known_results(out)
 
 
 def test_simulate_from_the_fit_flags_extrapolation(tmp_path, temperature_fit):
@@ -247,18 +270,20 @@ def test_simulate_reads_a_fit_with_or_without_a_schema_and_refuses_an_unknown_on
     (["-i", "ester=20"], "depend on temperature; give --temperature"),
     (["-i", "ester=20", "-T", "300"], "none is known; add reference"),
     (["-i", "ester=20", "-T", "-300"], "at or below absolute zero"),
-    (["-i", "ester=20", "-T", "30", "--temperature-unit", "m"], "not a temperature unit"),
+    (["-i", "ester=20", "-T", "30", "--temperature-unit", "m"], "'m' is not one of 'K', 'degC'"),
 ])
 def test_simulate_temperature_errors(tmp_path, args, message):
     result = runner.invoke(app, ["simulate", str(TEMPERATURE_DEMO / "ester_hydrolysis.toml"),
-                                 *args, "--out", str(tmp_path / "x")])
+                                 *args, "--time-unit", "min", "--concentration-unit", "mM",
+                                 "--out", str(tmp_path / "x")])
     assert result.exit_code == 2 and message in result.output, result.output
     assert not (tmp_path / "x").exists()
 
 
 def test_temperature_on_a_model_without_temperature_dependence(tmp_path):
     result = runner.invoke(app, ["simulate", str(MODELS / "first_order.toml"), "-i", "A=1",
-                                 "-T", "300", "--out", str(tmp_path / "x")])
+                                 "-T", "300", "--time-unit", "s", "--concentration-unit", "M",
+                                 "--out", str(tmp_path / "x")])
     assert result.exit_code == 2 and "do not depend on temperature" in result.output
 
 
@@ -340,6 +365,7 @@ def test_rank_command(rank_inputs):
     result = runner.invoke(app, ["rank", str(rank_inputs / "e.toml"), "--model",
                                  str(rank_inputs / "model.toml"), "--orders", "m=1,2",
                                  "--orders", "n=2", "--starts", "1", "--workers", "1",
+                                 "--fixed-order-starts", "2", "--criterion", "AICc",
                                  "--out", str(out)])
     assert result.exit_code == 0, result.output
     assert "Ranking of 3 candidates" in result.output and "Verdict" in result.output
@@ -353,6 +379,19 @@ def test_rank_command(rank_inputs):
     provenance = json.loads((out / "provenance.json").read_text())
     assert set(provenance["inputs"]) >= {"experiment", "model 1"}
     assert provenance["settings"]["orders"] == {"m": [1.0, 2.0], "n": [2.0]}
+    assert provenance["settings"]["lattice_starts"] == 2
+    _known_results(out)
+    # the earlier name of --fixed-order-starts still works, hidden from --help
+    older = runner.invoke(app, ["rank", str(rank_inputs / "e.toml"), "-m",
+                                str(rank_inputs / "model.toml"), "--orders", "m=1,2",
+                                "--starts", "1", "--workers", "1", "--lattice-starts", "3",
+                                "--no-initial-rates", "--no-report", "--out", str(out),
+                                "--overwrite"])
+    assert older.exit_code == 0, older.output
+    provenance = json.loads((out / "provenance.json").read_text())
+    assert provenance["settings"]["lattice_starts"] == 3
+    assert not (out / "report.html").exists()          # the earlier run's, removed
+    assert "--lattice-starts" not in runner.invoke(app, ["rank", "--help"]).output
 
 
 @pytest.mark.parametrize("orders, message", [
@@ -378,7 +417,7 @@ def test_rank_needs_two_candidates_and_a_known_criterion(rank_inputs):
     assert result.exit_code == 2 and "at least two candidates" in result.output
     result = runner.invoke(app, base + ["-m", str(rank_inputs / "model.toml"), "--criterion",
                                         "hqic"])
-    assert result.exit_code == 2 and "unknown criterion 'hqic'" in result.output
+    assert result.exit_code == 2 and "'hqic' is not one of 'aicc', 'aic', 'bic'" in result.output
     assert not (rank_inputs / "x").exists()
 
 
@@ -403,6 +442,7 @@ def test_sample_command(tmp_path):
     for name in ("chain.npz", "corner.png", "bands.png", "profiles.png",
                  "posterior_summary.txt"):
         assert (out / name).exists(), name
+    _known_results(out)
     # a second run into the same folder must not silently replace the chain
     again = runner.invoke(app, _sample_args(paths, out, "--steps", "400"))
     assert again.exit_code == 2 and "already holds a chain (400 steps)" in again.output
@@ -413,10 +453,11 @@ def test_sample_command(tmp_path):
 
 
 @pytest.mark.parametrize("extra, message", [
-    (["--noise", "loud"], "noise 'loud' is not known"),
-    (["--moves", "hop"], "moves 'hop' is not known"),
+    (["--noise", "loud"], "'loud' is not one of 'auto', 'declared', 'per-species', 'shared'"),
+    (["--moves", "hop"], "'hop' is not one of 'de', 'stretch'"),
     (["--walkers", "3"], "walkers must be even"),
     (["--max-time", "-1"], "expected a positive number of seconds"),
+    (["--resume", "--overwrite"], "--resume and --overwrite cannot be combined"),
 ])
 def test_sample_bad_options(tmp_path, extra, message):
     paths = write_line_problem(tmp_path)
@@ -492,6 +533,7 @@ def test_fit_command_on_full_spectra(tmp_path):
     assert len(data["signals"]["spectra"]["wavelengths"]) == 71
     lines = (out / "residual_map_r2.csv").read_text().splitlines()
     assert lines[0].startswith("time,380,384") and len(lines) == 1 + 46
+    _known_results(out)
 
 
 def test_fit_command_on_absorbance(tmp_path):
@@ -564,5 +606,255 @@ def test_command_line_and_library_share_their_defaults():
     assert option(cli.sample_command, "walkers") == library(kinfit.sample, "walkers")
     assert option(cli.sample_command, "steps") == library(kinfit.sample, "steps")
     assert option(cli.sample_command, "moves") == library(kinfit.sample, "moves")
-    assert option(cli.rank_command, "lattice_starts") == library(kinfit.rank, "lattice_starts")
+    assert option(cli.rank_command, "fixed_order_starts") == library(kinfit.rank,
+                                                                     "lattice_starts")
     assert option(cli.rank_command, "criterion") == library(kinfit.rank, "criterion")
+
+
+# --------------------------------------------- simulate: units from the fit or given
+
+MIN_MM_EXPERIMENT = """
+    [units]
+    time = "min"
+    concentration = "mM"
+    [data]
+    file = "traces.csv"
+    [[runs]]
+    name = "r1"
+    initial = { A = 1.0 }
+    [[runs]]
+    name = "r2"
+    initial = { A = 2.0 }
+"""
+
+
+@pytest.fixture(scope="module")
+def minute_fit(tmp_path_factory):
+    """A first-order fit in min and mM (data from the closed form A0 exp(−kt), seeded)."""
+    import numpy as np
+
+    folder = tmp_path_factory.mktemp("minute")
+    rng = np.random.default_rng(4)
+    times = np.linspace(0.0, 40.0, 11)
+    rows = ["run,time,species,value"]
+    for run, a0 in (("r1", 1.0), ("r2", 2.0)):
+        values = a0 * np.exp(-0.07 * times) + rng.normal(0, 0.01, times.size)
+        rows += [f"{run},{t:g},A,{v:.5f}" for t, v in zip(times, values)]
+    write(folder, "model.toml", FIRST_ORDER_MODEL)
+    write(folder, "experiment.toml", MIN_MM_EXPERIMENT)
+    write(folder, "traces.csv", "\n".join(rows) + "\n")
+    out = folder / "fit"
+    result = runner.invoke(app, ["fit", str(folder / "experiment.toml"), "-m",
+                                 str(folder / "model.toml"), "-o", str(out), "--starts", "1",
+                                 "--no-report"])
+    assert result.exit_code == 0, result.output
+    return folder, out
+
+
+def test_simulate_needs_units_without_a_fit(tmp_path):
+    out = tmp_path / "sim"
+    result = runner.invoke(app, ["simulate", str(MODELS / "first_order.toml"), "-i", "A=1",
+                                 "--time-unit", "min", "--out", str(out)])
+    assert result.exit_code == 2
+    assert ("give --concentration-unit: the model file's values carry no units"
+            in result.output)
+    result = runner.invoke(app, ["simulate", str(MODELS / "first_order.toml"), "-i", "A=1",
+                                 "--out", str(out)])
+    assert result.exit_code == 2 and "give --time-unit and --concentration-unit" in result.output
+    assert not out.exists()
+
+
+def test_simulate_from_an_ordinary_fit_takes_its_values_units_and_covariance(tmp_path,
+                                                                            minute_fit):
+    import numpy as np
+
+    folder, fitted = minute_fit
+    data = json.loads((fitted / "result.json").read_text())
+    basis = data["prediction_basis"]
+    assert basis["units"]["time"] == "min" and basis["units"]["concentration"] == "mM"
+    assert basis["free"] == ["k"] and basis["fitted_range"]["initial"]["A"] == [1.0, 2.0]
+    se = data["parameters"]["k"]["stderr"]
+    # the covariance written for the band is the fit's (standard error squared)
+    assert basis["covariance"][0][0] == pytest.approx(se ** 2, rel=1e-9)
+    out = tmp_path / "sim"
+    result = runner.invoke(app, ["simulate", str(folder / "model.toml"), "-i", "A=1.5",
+                                 "--fit", str(fitted / "result.json"), "--until", "30",
+                                 "--points", "31", "--draws", "50", "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert "times in min, concentrations in mM" in result.output
+    assert "at t = 30 min:" in result.output and " mM  (95 % band" in result.output
+    assert "EXTRAPOLATED" not in result.output
+    header, *rows = (out / "simulation.csv").read_text().splitlines()
+    assert header == "time (min),A (mM),P (mM),A_lower (mM),A_upper (mM),P_lower (mM),P_upper (mM)"
+    table = np.array([[float(x) for x in row.split(",")] for row in rows])
+    k = data["parameters"]["k"]["value"]
+    # outside check: the closed form of first-order decay (physical-chemistry textbooks),
+    # [A] = [A]0 exp(-k t), at the fitted k
+    np.testing.assert_allclose(table[:, 1], 1.5 * np.exp(-k * table[:, 0]), rtol=1e-6)
+    assert (table[1:, 3] < table[1:, 1]).all() and (table[1:, 1] < table[1:, 4]).all()
+    prediction = json.loads((out / "prediction.json").read_text())
+    assert prediction["units"] == {"time": "min", "concentration": "mM"}
+    assert prediction["uncertainty"] == "covariance"
+
+
+def test_simulate_from_a_fit_refuses_other_units_and_other_files(tmp_path, minute_fit):
+    folder, fitted = minute_fit
+    base = ["simulate", str(folder / "model.toml"), "-i", "A=1", "--fit",
+            str(fitted / "result.json"), "--out", str(tmp_path / "x")]
+    result = runner.invoke(app, base + ["--time-unit", "s"])
+    assert result.exit_code == 2
+    assert "--time-unit s: the fit in" in result.output and "is in min" in result.output
+    same = runner.invoke(app, base + ["--time-unit", "minute", "--concentration-unit",
+                                      "mmol/L", "--draws", "0"])
+    assert same.exit_code == 0, same.output        # the same units, written otherwise
+    data = json.loads((fitted / "result.json").read_text())
+    write(tmp_path, "posterior.json", json.dumps({"schema": "kinfit.posterior/1"}))
+    other = runner.invoke(app, base[:-4] + ["--fit", str(tmp_path / "posterior.json"),
+                                            "--out", str(tmp_path / "y")])
+    assert other.exit_code == 2 and "holds 'kinfit.posterior/1', not a fit" in other.output
+    write(tmp_path, "bare.json", json.dumps({**data, "prediction_basis": None}))
+    bare = runner.invoke(app, base[:-4] + ["--fit", str(tmp_path / "bare.json"),
+                                           "--out", str(tmp_path / "z")])
+    assert bare.exit_code == 2 and "holds no prediction basis" in bare.output
+
+
+# --------------------------------------------------------- options of every command
+
+def test_version():
+    from kinfit.core.version import __version__
+
+    result = runner.invoke(app, ["--version"])
+    assert result.exit_code == 0 and result.output.strip() == f"kinfit {__version__}"
+
+
+def test_every_help_lists_the_allowed_values():
+    shown = {}
+    for command in COMMANDS:
+        text = runner.invoke(app, command + ["-h"]).output
+        assert "<str>" not in text and "<list[" not in text, command
+        shown[tuple(command)] = " ".join(text.split())
+    assert "--two-stage <free|global|none>" in shown[("fit",)]
+    for command in (("fit",), ("sample",)):
+        assert "--noise <auto|declared|per-species|shared>" in shown[command]
+    assert "--moves <de|stretch>" in shown[("sample",)]
+    assert "--criterion <aicc|aic|bic>" in shown[("rank",)]
+    assert "--components <auto|all|N>" in shown[("fit",)]
+    assert "--temperature-unit <K|degC>" in shown[("simulate",)]
+
+
+def test_the_allowed_values_are_the_library_s():
+    import typing
+
+    from kinfit.analysis.criteria import CRITERIA
+    from kinfit.analysis.two_stage import ORDERS
+    from kinfit.app import cli
+    from kinfit.estimation.noise import FIT_NOISE_MODES
+    from kinfit.estimation.sampler import MOVES
+    from kinfit.estimation.space import NOISE_MODES
+
+    def choices(command, name):
+        return typing.get_args(typing.get_type_hints(command)[name])
+
+    assert choices(cli.fit_command, "noise") == cli.NOISE == FIT_NOISE_MODES == NOISE_MODES
+    assert choices(cli.sample_command, "noise") == cli.NOISE
+    assert choices(cli.sample_command, "moves") == cli.MOVES == MOVES
+    assert choices(cli.fit_command, "two_stage") == cli.TWO_STAGE == ORDERS + ("none",)
+    assert set(choices(cli.rank_command, "criterion")) == set(cli.CRITERIA) == set(CRITERIA)
+
+
+def test_short_options_mean_the_same_in_every_command(tmp_path):
+    import typer.main
+
+    from kinfit.app import cli
+
+    meaning = {}
+    for command in typer.main.get_command(cli.app).commands.values():
+        for param in command.params:
+            if param.param_type_name != "option" or param.hidden:
+                continue
+            longs = [o for o in param.opts if o.startswith("--")]
+            for short in (o for o in param.opts if not o.startswith("--")):
+                meaning.setdefault(short, set()).add(longs[0])
+    assert meaning == {"-m": {"--model"}, "-o": {"--out"}, "-i": {"--initial"},
+                       "-T": {"--temperature"}}
+    # --set keeps its earlier short form, hidden
+    assert "-s," not in runner.invoke(app, ["simulate", "-h"]).output
+    outputs = []
+    for option in ("-s", "--set"):
+        out = tmp_path / option
+        result = runner.invoke(app, ["simulate", str(MODELS / "consecutive.toml"), "-i", "A=1",
+                                     option, "k1=2.5", "--time-unit", "s",
+                                     "--concentration-unit", "M", "--until", "1", "--points",
+                                     "3", "-o", str(out)])
+        assert result.exit_code == 0, result.output
+        outputs.append((out / "simulation.csv").read_text())
+    assert outputs[0] == outputs[1]
+    default = runner.invoke(app, ["simulate", str(MODELS / "consecutive.toml"), "-i", "A=1",
+                                  "--time-unit", "s", "--concentration-unit", "M", "--until",
+                                  "1", "--points", "3", "-o", str(tmp_path / "default")])
+    assert default.exit_code == 0
+    assert (tmp_path / "default" / "simulation.csv").read_text() != outputs[0]
+
+
+def test_fit_noise_option(tmp_path, minute_fit):
+    folder, _ = minute_fit
+    out = tmp_path / "fit"
+    args = ["fit", str(folder / "experiment.toml"), "-m", str(folder / "model.toml"), "-o",
+            str(out), "--starts", "1", "--no-report"]
+    declared = runner.invoke(app, args + ["--noise", "declared"])
+    assert declared.exit_code == 2 and "noise 'declared' was asked for" in declared.output
+    assert not out.exists()
+    result = runner.invoke(app, args + ["--noise", "per-species"])
+    assert result.exit_code == 0, result.output
+    assert "σ of each species estimated: A " in result.output
+    data = json.loads((out / "result.json").read_text())
+    assert data["statistics"]["noise"] == "per-species"
+    assert set(data["statistics"]["noise_levels"]) == {"A"}
+    assert json.loads((out / "provenance.json").read_text())["settings"]["noise"] == "per-species"
+
+
+# ---------------------------------------------------- one rule for output folders
+
+def test_fit_refuses_a_folder_with_earlier_results_and_overwrite_replaces_them(tmp_path):
+    write(tmp_path, "model.toml", FIRST_ORDER_MODEL)
+    write(tmp_path, "experiment.toml", SMALL_EXPERIMENT)
+    write(tmp_path, "traces.csv", SMALL_TRACES)
+    out = tmp_path / "out"
+    args = ["fit", str(tmp_path / "experiment.toml"), "-m", str(tmp_path / "model.toml"),
+            "-o", str(out), "--starts", "1"]
+    assert runner.invoke(app, args).exit_code == 0
+    # an earlier sampling's files and a file of the user's in the same folder
+    (out / "posterior.json").write_text('{"schema": "kinfit.posterior/1"}')
+    (out / "corner.png").write_bytes(b"old")
+    (out / "notes.txt").write_text("mine")
+    before = (out / "result.json").read_text()
+    again = runner.invoke(app, args)
+    assert again.exit_code == 2
+    errors = [line for line in again.output.splitlines() if line.startswith("error:")]
+    assert len(errors) == 1 and re.fullmatch(
+        rf"error: --out {re.escape(str(out))}: already holds results of an earlier run "
+        r"\(corner\.png and \d+ more\); add --overwrite to replace them, or choose another "
+        r"--out", errors[0]), errors
+    assert (out / "result.json").read_text() == before
+    replaced = runner.invoke(app, args + ["--overwrite"])
+    assert replaced.exit_code == 0, replaced.output
+    assert not (out / "posterior.json").exists() and not (out / "corner.png").exists()
+    assert (out / "notes.txt").read_text() == "mine"
+    assert "Posterior" not in (out / "report.html").read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize("command", [
+    ["simulate", str(MODELS / "first_order.toml"), "-i", "A=1", "--time-unit", "s",
+     "--concentration-unit", "M"],
+    ["rank", "e.toml", "-m", "m1.toml", "-m", "m2.toml"],
+    ["sample", "e.toml", "-m", "m1.toml"],
+    ["demo"],
+])
+def test_every_command_refuses_a_folder_with_earlier_results(tmp_path, command):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "result.json").write_text("{}")
+    result = runner.invoke(app, command + ["--out", str(out)])
+    assert result.exit_code == 2, result.output
+    assert "already holds results of an earlier run (result.json)" in result.output
+    assert [p.name for p in out.iterdir()] == ["result.json"]

@@ -11,7 +11,7 @@ import time
 
 import numpy as np
 import pytest
-from conftest import DEMO, ROOT, write
+from conftest import DEMO, MODELS, ROOT, write
 
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.experiment import load_experiment
@@ -78,7 +78,7 @@ def test_extremely_stiff_equations_finish(decay):
 
 
 def test_work_bound_stops_an_endless_integration():
-    system = compile_mechanism(load_mechanism(ROOT / "models" / "pre_equilibrium.toml"))
+    system = compile_mechanism(load_mechanism(MODELS / "pre_equilibrium.toml"))
     k, orders = system.rate_arrays(np.array([1e9, 1e9, 0.1]))
     sol = integrate_flat(system.stoichiometry, system.present, np.array([[1.0, 1.0, 0, 0]]), k,
                          orders, np.linspace(0, 1e6, 5), np.array([0, 5]), method="LSODA",
@@ -89,7 +89,7 @@ def test_work_bound_stops_an_endless_integration():
 
 def test_concentrations_never_go_negative_with_zero_order():
     # [Atkins] zero order: A = A0 - k t until A runs out, then the step stops
-    system = compile_mechanism(load_mechanism(ROOT / "models" / "zero_order.toml"))
+    system = compile_mechanism(load_mechanism(MODELS / "zero_order.toml"))
     k, orders = system.rate_arrays(np.array([1.0]))
     sol = integrate_flat(system.stoichiometry, system.present, np.array([[1.0, 0.0]]), k, orders,
                          np.linspace(0, 100, 11), np.array([0, 11]))
@@ -125,7 +125,7 @@ def _complete(path):
 def test_killed_runs_leave_previous_or_new_complete_outputs(tmp_path):
     out = tmp_path / "out"
     cmd = [sys.executable, "-m", "kinfit.app.cli", "fit", str(DEMO / "experiment.toml"), "--model",
-           str(DEMO / "thiol_addition.toml"), "--out", str(out), "--starts", "2"]
+           str(DEMO / "thiol_addition.toml"), "--out", str(out), "--starts", "2", "--overwrite"]
     subprocess.run(cmd, check=True, capture_output=True, cwd=ROOT)
     before = {p.name: p.read_bytes() for p in out.iterdir()}
     rng = np.random.default_rng(8)

@@ -55,7 +55,7 @@ from kinfit.numerics.integrators._kernels import (
     to_conc,
 )
 
-__all__ = ["NAME", "integrate_batch", "right_hand_side"]
+__all__ = ["NAME", "COMPILED", "integrate_batch", "right_hand_side"]
 
 NAME = "compiled Dormand-Prince 5(4)"     # as reports name it
 
@@ -329,6 +329,11 @@ def _batch_states(basis, dirmap, present, y0, k, E, eps, t_out, out_start, rtol,
         steps[i] = nst
         n_rhs += nr
     return n_rhs
+
+
+# the compiled entry points (with sensitivities, states only): their numba cache
+# tells whether this machine has compiled them yet
+COMPILED = (_batch, _batch_states)
 
 
 def integrate_batch(stoich, present, y0, k, E, t_out, out_start, *, rtol, atol, eps,

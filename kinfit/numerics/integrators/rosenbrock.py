@@ -38,7 +38,7 @@ from kinfit.numerics.integrators._kernels import (
     plain_rhs,
 )
 
-__all__ = ["NAME", "integrate_stiff", "right_hand_side"]
+__all__ = ["NAME", "COMPILED", "integrate_stiff", "right_hand_side"]
 
 NAME = "compiled Rosenbrock 4(3)"     # as reports name it
 
@@ -248,6 +248,10 @@ def _ros_lockstep(Y0, stoich, K, EE, present, eps, t_out, rtol, atol, max_steps,
             if not math.isfinite(Y[c, a]):
                 return FAILED, steps, n_rhs
     return OK, steps, n_rhs
+
+
+# the compiled entry point (see dopri.COMPILED)
+COMPILED = (_ros_lockstep,)
 
 
 def integrate_stiff(stoich, present, y0, k, E, t_out, *, rtol, atol, eps, sens=None,

@@ -1,7 +1,7 @@
 """Regenerate the demo's spectrometer part in this folder (fixed seed, so the same bytes).
 
 The invented scenario, the true values and the noise are defined in
-kinfit/demo_spectra.py; `kinfit demo` writes the same files into its output
+kinfit.app.demo_spectra; `kinfit demo` writes the same files into its output
 folder (inputs/spectrometer) and fits them. Run from anywhere:
 
     python demo/spectra/make_data.py
