@@ -51,7 +51,7 @@ from kinfit.estimation.likelihood import (
     information_criteria,
 )
 from kinfit.estimation.linear_unknowns import resolve_signals
-from kinfit.estimation.residual_checks import check_residuals
+from kinfit.estimation.residual_checks import check_residuals, summarize_checks
 from kinfit.estimation.scale import ScaledProblem, fit_scale
 from kinfit.inputs.mechanism import format_rate_law
 from kinfit.inputs.parameters import Role
@@ -201,6 +201,12 @@ class FitResult:
         dof = self.n_points - self.n_free
         return self.chi2 / dof if dof > 0 else math.nan
 
+    @property
+    def residual_check_summary(self):
+        """What the residual checks judged (see
+        :func:`kinfit.estimation.residual_checks.summarize_checks`)."""
+        return summarize_checks(self.residual_checks)
+
     def rate_laws(self, digits=3):
         """Each direction's rate law with fitted orders.
 
@@ -291,6 +297,7 @@ class FitResult:
             "warnings": list(self.warnings),
             "signals": None if self.signals is None else self.signals.to_dict(),
             "residual_checks": [c.to_dict() for c in self.residual_checks],
+            "residual_check_summary": self.residual_check_summary,
         }
 
 

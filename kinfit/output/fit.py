@@ -13,7 +13,7 @@ import textwrap
 from kinfit.core.formatting import format_value
 from kinfit.core.schema import schema_json
 from kinfit.output.bundle import Bundle, figure_files, write_bundle
-from kinfit.output.text import closing_lines, csv_text, text_table
+from kinfit.output.text import closing_lines, csv_text, text_table, wrapped
 
 __all__ = ["format_fit", "curves_csv", "fit_bundle", "write_fit"]
 
@@ -57,7 +57,21 @@ def format_fit(result, cautions=True):
     strong = _strong_correlations(result)
     if strong:
         out.append(f"     strong correlations: {', '.join(strong)}")
+    out += _residual_check_lines(result)
     return "\n".join(out + closing_lines(result.warnings, cautions))
+
+
+def _residual_check_lines(result):
+    """The residual checks' heading, tests and rule, and each trace not called fine."""
+    if not result.residual_checks:
+        return []
+    summary = result.residual_check_summary
+    out = ["", f"Residual checks: {summary['heading']}"]
+    out += wrapped(f"tests: {summary['tests']}; rule: {summary['rule']}", "  ", "  ")
+    for c in result.residual_checks:
+        if c.misfit or not c.judged:
+            out += wrapped(f"{c.run} {c.species}: {c.verdict}")
+    return out
 
 
 def _statistics_line(result):

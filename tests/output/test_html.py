@@ -156,3 +156,15 @@ def test_report_shows_the_temperature_caution_whole(tmp_path, arrhenius_study):
     ns = {"h": "http://www.w3.org/1999/xhtml"}
     cautions = [div.text for div in root.iterfind(".//h:div[@class='caution']", ns)]
     assert cautions == [CAUTIONS, temperature_cautions(acts[0].temperature_range)]
+
+
+def test_residual_checks_say_what_was_and_was_not_judged(demo_folder):
+    # The heading counts judged, misfitted and unjudged traces from result.json's summary;
+    # the tests and the rule are named; the table carries both p-values.
+    summary = json.loads((demo_folder / "result.json").read_text())["residual_check_summary"]
+    html = (demo_folder / "report.html").read_text(encoding="utf-8")
+    section = html[html.index('id="residuals"'):html.index('id="ranking"')]
+    assert summary["heading"] in section and "traces judged" in summary["heading"]
+    assert "exact runs test" in section and "Ljung–Box" in section
+    assert "too short to judge when the exact runs test could not reach" in section
+    assert "p (few runs, exact)" in section and "p (lag-1)" in section
