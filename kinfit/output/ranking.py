@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 
-from kinfit.analysis.criteria import SOURCES
+from kinfit.analysis.criteria import NOTABLE_WEIGHT, SOURCES
 from kinfit.core.formatting import CAUTIONS, format_value
 from kinfit.core.schema import schema_json
 from kinfit.output.bundle import Bundle, figure_files, write_bundle
@@ -58,13 +58,7 @@ def format_ranking(comparison, top=10, cautions=True):
     for line in comparison.verdict:
         out += wrapped(line)
     out += _nested_lines(comparison)
-    if comparison.averages:
-        out += ["", "Model-averaged parameters (Akaike weights; unconditional standard "
-                    "error)"]
-        out += text_table([(a.name, format_value(a.value, a.stderr), a.unit, f"{a.weight:.3f}",
-                            str(a.n_candidates)) for a in comparison.averages],
-                          ("name", "value ± standard error", "unit", "weight covered",
-                           "candidates"))
+    out += _average_lines(comparison)
     if comparison.cross_check is not None:
         out += [""] + format_cross_check(comparison.cross_check)
     if comparison.warnings:
@@ -80,6 +74,33 @@ def format_ranking(comparison, top=10, cautions=True):
             "true mechanism; a model not among the candidates may be better still. "
             + CAUTIONS, "  ", "  ")
     return "\n".join(out)
+
+
+def _average_lines(comparison):
+    """Model averages, each with the candidates it used and their renormalised weights."""
+    if not comparison.averages:
+        return []
+    out = ["", "Model-averaged parameters (each over the candidates that estimate it, with "
+               "Akaike weights", "renormalised among them; Burnham & Anderson's "
+               "unconditional standard error)"]
+    out += text_table([(a.name, format_value(a.value, a.stderr), a.unit,
+                        f"{a.n_candidates} ({a.weight:.3f})" if a.n_candidates > 1
+                        else "1: not averaged") for a in comparison.averages],
+                      ("name", "value ± standard error", "unit", "candidates (weight)"))
+    for a in comparison.averages:
+        shown = [(n, w) for n, w in a.candidates if w >= NOTABLE_WEIGHT]
+        used = ", ".join(f"'{_short(_label(comparison, n), 30)}' {w:.3f}" for n, w in shown)
+        if len(shown) < len(a.candidates):
+            used += f" and {len(a.candidates) - len(shown)} of weight below {NOTABLE_WEIGHT:g}"
+        only = _short(_label(comparison, a.candidates[0][0]), 30)
+        text = (f"{a.name} over {used}" if a.n_candidates > 1 else
+                f"{a.name} is estimated by '{only}' alone, so it is not averaged: the value "
+                f"and standard error are that candidate's")
+        if a.left_out:
+            text += ("; left out, as they fix it or give it another unit: "
+                     + ", ".join(f"'{_short(_label(comparison, n), 30)}'" for n in a.left_out))
+        out += wrapped(text)
+    return out
 
 
 def _nested_lines(comparison, shown_at_most=8):
