@@ -153,8 +153,7 @@ def format_cross_check(check):
         out += ["", f"  Orders, beside the time-course fit of '{check.candidate}'"]
         order_rows = []
         for c in check.orders:
-            diff = "—" if c.z is None else f"{abs(c.z):.1f} se " + (
-                "(agree)" if c.agrees else "(DISAGREE)")
+            diff = "—" if c.z is None else f"{abs(c.z):.1f} se " + _verdict_word(c.agrees)
             fitted = format_value(c.time_course, c.time_course_stderr or None) + (
                 " (fixed)" if c.time_course_stderr == 0 else "")
             order_rows.append((c.species, format_value(c.initial_rates, c.initial_rates_stderr),
@@ -164,15 +163,24 @@ def format_cross_check(check):
                    f"{ir.k_unit or ''} (its orders, {reg.dof} degree(s) of freedom)")
         k = check.rate_constant
         if k is not None:
-            diff = "" if k["z"] is None else f"; {abs(k['z']):.1f} se on ln k " + (
-                "(agree)" if k["agrees"] else "(DISAGREE)")
+            diff = "" if k["z"] is None else f"; {abs(k['z']):.1f} se on ln k " + \
+                _verdict_word(k["agrees"])
             out.append(f"  {k['name']} at the fitted orders: initial rates "
                        f"{format_value(k['initial_rates'], k['initial_rates_stderr'])}, time "
                        f"course {format_value(k['time_course'], k['time_course_stderr'])} "
                        f"{k['unit'] or ''}{diff}")
     for note in ir.notes:
         out += wrapped(note, "  note: ")
+    if check.cannot_check:
+        out += wrapped("verdict: CANNOT CHECK, not a disagreement: the initial rates come "
+                       "from beyond the conversion window (note above), biased by an amount "
+                       "the method cannot estimate", "  ", "    ")
     return out
+
+
+def _verdict_word(agrees):
+    """(agree), (DISAGREE), or (cannot check) when no verdict is possible."""
+    return {True: "(agree)", False: "(DISAGREE)"}.get(agrees, "(cannot check)")
 
 
 def _species_of(rates):
