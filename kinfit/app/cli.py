@@ -29,6 +29,7 @@ from kinfit.core.defaults import (
     DEFAULT_SEED,
     DEFAULT_STARTS,
     DEFAULT_STEPS,
+    DEFAULT_TWO_STAGE,
     DEFAULT_WALKERS,
     LATTICE_STARTS,
 )
@@ -86,7 +87,7 @@ def fit_command(
     starts: int = typer.Option(DEFAULT_STARTS, "--starts", min=1,
                                help="Starting points refined by least squares."),
     seed: int = typer.Option(DEFAULT_SEED, "--seed", help="Seed of the start screen."),
-    two_stage: str = typer.Option("free", "--two-stage",
+    two_stage: str = typer.Option(DEFAULT_TWO_STAGE, "--two-stage",
                                   help="For a model with a [temperature] table: the two-stage "
                                        "analysis beside the global fit, with 'free' orders at "
                                        "each temperature, orders fixed at the 'global' fit's "

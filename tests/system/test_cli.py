@@ -195,6 +195,7 @@ def test_fit_command_on_the_temperature_example(temperature_fit):
     assert abs(ea["value"] - 55.0) < 3 * ea["stderr"]
     assert data["activation"][0]["temperature_range_K"] == [288.15, 318.15]
     assert "Caution (temperature)" in (out / "summary.txt").read_text()
+    assert data["two_stage"]["orders"] == "global"      # the default, DEFAULT_TWO_STAGE
 
 
 def test_simulate_from_the_fit_flags_extrapolation(tmp_path, temperature_fit):
