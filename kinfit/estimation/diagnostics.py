@@ -189,7 +189,7 @@ def _steps_to_advise(tau, n_kept, worst_rhat, n_steps):
     kept = RHAT_TAU_MULTIPLE * tau
     if math.isfinite(worst_rhat) and worst_rhat > MAX_RHAT:
         kept = max(kept, n_kept * (worst_rhat - 1.0) / (MAX_RHAT - 1.0))
-    return int(math.ceil(ADVICE_MARGIN * (BURN_TAU_MULTIPLE * tau + kept)))
+    return math.ceil(ADVICE_MARGIN * (BURN_TAU_MULTIPLE * tau + kept))
 
 
 def diagnose(chain, names, accepted, burn=None, thin=1):

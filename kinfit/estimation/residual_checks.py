@@ -50,12 +50,11 @@ __all__ = ["TraceCheck", "runs_test", "runs_distribution", "lag1_test", "check_r
 
 MISFIT_P = 0.01     # one-sided p below which a trace is called systematically misfitted
 
-TESTS = ("exact runs test on the signs of the residuals (Wald–Wolfowitz); "
-         "lag-1 autocorrelation with the Ljung–Box test (one-sided)")
-RULE = (f"a trace shows systematic misfit when either test gives p < {MISFIT_P:g}; one "
-        f"without misfit is too short to judge when the exact runs test could not reach "
-        f"p < {MISFIT_P:g} with its numbers of positive and negative residuals "
-        f"(2 / C(n, n₊) ≥ {MISFIT_P:g})")
+TESTS = ("exact runs test on the residuals' signs (Wald–Wolfowitz) and lag-1 "
+         "autocorrelation (Ljung–Box, one-sided)")
+RULE = (f"systematic misfit where either test gives p < {MISFIT_P:g}; too short to judge "
+        f"where neither does and the runs test could not reach p < {MISFIT_P:g} with the "
+        f"trace's numbers of positive and negative residuals (2 / C(n, n₊) ≥ {MISFIT_P:g})")
 
 
 @dataclass(frozen=True)

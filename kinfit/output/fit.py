@@ -67,7 +67,7 @@ def _residual_check_lines(result):
         return []
     summary = result.residual_check_summary
     out = ["", f"Residual checks: {summary['heading']}"]
-    out += wrapped(f"tests: {summary['tests']}; rule: {summary['rule']}", "  ", "  ")
+    out += wrapped(f"{summary['tests']}; {summary['rule']}", "  ", "  ")
     for c in result.residual_checks:
         if c.misfit or not c.judged:
             out += wrapped(f"{c.run} {c.species}: {c.verdict}")

@@ -89,16 +89,16 @@ def _average_lines(comparison):
                       ("name", "value ± standard error", "unit", "candidates (weight)"))
     for a in comparison.averages:
         shown = [(n, w) for n, w in a.candidates if w >= NOTABLE_WEIGHT]
-        used = ", ".join(f"'{_short(_label(comparison, n), 30)}' {w:.3f}" for n, w in shown)
+        used = ", ".join(f"'{_short(_label(comparison, n), 40)}' {w:.3f}" for n, w in shown)
         if len(shown) < len(a.candidates):
             used += f" and {len(a.candidates) - len(shown)} of weight below {NOTABLE_WEIGHT:g}"
-        only = _short(_label(comparison, a.candidates[0][0]), 30)
+        only = _short(_label(comparison, a.candidates[0][0]), 40)
         text = (f"{a.name} over {used}" if a.n_candidates > 1 else
                 f"{a.name} is estimated by '{only}' alone, so it is not averaged: the value "
                 f"and standard error are that candidate's")
         if a.left_out:
             text += ("; left out, as they fix it or give it another unit: "
-                     + ", ".join(f"'{_short(_label(comparison, n), 30)}'" for n in a.left_out))
+                     + ", ".join(f"'{_short(_label(comparison, n), 40)}'" for n in a.left_out))
         out += wrapped(text)
     return out
 

@@ -48,17 +48,17 @@ def advised(diag, chain, margin):
     kept = RHAT_TAU_MULTIPLE * tau
     if worst > MAX_RHAT:
         kept = max(kept, diag.n_kept * (worst - 1.0) / (MAX_RHAT - 1.0))
-    return max(int(math.ceil(margin * (BURN_TAU_MULTIPLE * tau + kept))), diag.n_steps + 1)
+    return max(math.ceil(margin * (BURN_TAU_MULTIPLE * tau + kept)), diag.n_steps + 1)
 
 
 def earlier_rule(diag):
     """The advice before: 63 τ of the kept part, or the R-hat scaling × 1.2."""
     tau = max(diag.autocorr_time.values())
-    n = int(math.ceil((BURN_TAU_MULTIPLE + 1.2 * 50) * tau))
+    n = math.ceil((BURN_TAU_MULTIPLE + 1.2 * 50) * tau)
     worst = max(diag.rhat.values())
     if worst > MAX_RHAT:
-        n = max(n, int(math.ceil(diag.burn_in + 1.2 * diag.n_kept * (worst - 1.0)
-                                 / (MAX_RHAT - 1.0))))
+        n = max(n, math.ceil(diag.burn_in + 1.2 * diag.n_kept * (worst - 1.0)
+                             / (MAX_RHAT - 1.0)))
     return max(n, diag.n_steps + 1)
 
 

@@ -93,7 +93,7 @@ def test_following_the_advice_once_reaches_the_criterion(seed):
     assert f"--steps {n} --resume" in short.advice and 300 < n <= 4000
     assert diagnose(chain[:n], ["a", "b"], accepted(n)).converged
     tau = max(short.autocorr_time.values())
-    emcee_only = int(math.ceil(53 * tau))
+    emcee_only = math.ceil(53 * tau)
     assert not diagnose(chain[:emcee_only], ["a", "b"], accepted(emcee_only)).converged
 
 

@@ -166,5 +166,6 @@ def test_residual_checks_say_what_was_and_was_not_judged(demo_folder):
     section = html[html.index('id="residuals"'):html.index('id="ranking"')]
     assert summary["heading"] in section and "traces judged" in summary["heading"]
     assert "exact runs test" in section and "Ljung–Box" in section
-    assert "too short to judge when the exact runs test could not reach" in section
+    assert "too short to judge where neither does and the runs test could not reach" in \
+        section
     assert "p (few runs, exact)" in section and "p (lag-1)" in section
