@@ -40,12 +40,23 @@ and the likelihood-ratio test D = 2(ln L_l − ln L_s) ~ χ²(p_l − p_s)
 
 Model averaging
 ---------------
-For a rate constant or order present, with the same unit, in several
-candidates: θ̄ = Σ w_i θ_i / Σ w_i over those candidates (AICc weights), with
-the unconditional standard error Σ w_i sqrt(se_i² + (θ_i − θ̄)²) / Σ w_i
-(Burnham & Anderson 2002, eq. 4.9, from memory). Only candidates whose
-parameter has the unit of the best candidate's are averaged (a rate
-constant's unit changes with the overall order).
+A rate constant or order is averaged only over the candidates that estimate
+it: a candidate that fixes it (an order search's fixed-order candidates fix
+their orders) or lacks it says nothing about its uncertainty and is left out,
+and so is one whose rate constant has another unit than the best
+estimating candidate's (a rate constant's unit changes with the overall
+order). Over the candidates that remain, with Akaike (AICc) weights w_i
+renormalised to sum to 1 among them,
+
+    θ̄ = Σ w_i θ_i,
+    var(θ̄) = [Σ w_i sqrt(var(θ_i) + (θ_i − θ̄)²)]²
+
+the unconditional variance of Burnham & Anderson, *Model Selection and
+Multimodel Inference*, 2nd ed. (2002), chapter 4 (eq. 4.9, from
+memory), whose square root is the unconditional standard error. A parameter
+estimated by one candidate only is not averaged (its own estimate and
+standard error stand); each average lists the candidates it used with their
+renormalised weights and the supported candidates it left out.
 """
 
 from __future__ import annotations
@@ -58,11 +69,12 @@ import numpy as np
 from kinfit.core.errors import KinfitError
 from kinfit.inputs.parameters import Role
 
-__all__ = ["CRITERIA", "SOURCES", "ModelAverage", "criterion_weights", "evidence_aicc",
-           "evidence_bic", "evidence_bic_for_best", "f_test", "likelihood_ratio_test",
-           "model_averages"]
+__all__ = ["CRITERIA", "NOTABLE_WEIGHT", "SOURCES", "ModelAverage", "criterion_weights",
+           "evidence_aicc", "evidence_bic", "evidence_bic_for_best", "f_test",
+           "likelihood_ratio_test", "model_averages"]
 
 CRITERIA = ("aicc", "aic", "bic")
+NOTABLE_WEIGHT = 0.001     # Akaike weight below which a left-out candidate goes unnamed
 
 # Burnham & Anderson (2002) §2.6, from memory; the 2–4 and 7–10 bands are kinfit's.
 _AICC_SCALE = ((2.0, "substantial support"), (4.0, "less support"),
@@ -80,13 +92,15 @@ SOURCES = {
            "6–10 strong, >10 very strong",
     "nested": "extra-sum-of-squares F-test; likelihood-ratio test (Wilks 1938); boundary "
               "cases conservative (Self & Liang 1987)",
-    "averaging": "Burnham & Anderson (2002) eq. 4.9, unconditional standard error",
+    "averaging": "Burnham & Anderson (2002), chapter 4, eq. 4.9: unconditional variance "
+                 "[Σ w_i sqrt(var_i + (θ_i − θ̄)²)]² over the candidates that estimate the "
+                 "parameter, weights renormalised among them",
 }
 
 
 @dataclass(frozen=True)
 class ModelAverage:
-    """A parameter averaged over the candidates that share it (AICc weights).
+    """A parameter averaged over the candidates that estimate it (AICc weights).
 
     Attributes
     ----------
@@ -95,11 +109,24 @@ class ModelAverage:
         Rate constant or order.
     unit : str
     value : float
+        θ̄ = Σ w_i θ_i with the renormalised weights.
     stderr : float or None
-        Unconditional standard error (Burnham & Anderson 2002, eq. 4.9).
+        Unconditional standard error, the square root of Burnham & Anderson's
+        unconditional variance (2002, chapter 4, eq. 4.9).
     weight : float
-        Total Akaike weight of the candidates averaged over.
+        Total Akaike weight of the candidates averaged over (before
+        renormalising).
     n_candidates : int
+    candidates : tuple of (str, float)
+        Each candidate averaged over and its renormalised weight w_i, best
+        first.
+    left_out : tuple of str
+        Candidates of Akaike weight at least :data:`NOTABLE_WEIGHT` that
+        have the parameter but do not estimate it (they fix it) or give it
+        another unit.
+
+    With `n_candidates` 1 the parameter is not averaged: `value` and
+    `stderr` are the one estimating candidate's own.
     """
 
     name: str
@@ -109,6 +136,16 @@ class ModelAverage:
     stderr: float | None
     weight: float
     n_candidates: int
+    candidates: tuple[tuple[str, float], ...] = ()
+    left_out: tuple[str, ...] = ()
+
+    def to_dict(self):
+        """Plain-Python form: one entry of ``model_averages`` in ``ranking.json``."""
+        return {"name": self.name, "role": self.role, "unit": self.unit,
+                "value": self.value, "stderr": self.stderr, "weight": self.weight,
+                "n_candidates": self.n_candidates,
+                "candidates": [{"name": n, "weight": w} for n, w in self.candidates],
+                "left_out": list(self.left_out)}
 
 
 # ------------------------------------------------------------- weights, words
@@ -212,20 +249,24 @@ def likelihood_ratio_test(loglik_small, loglik_large, extra_params):
 # ---------------------------------------------------------------- averaging
 
 def model_averages(rows):
-    """Rate constants and orders averaged over the candidates sharing them.
+    """Rate constants and orders averaged over the candidates that estimate them.
 
     Parameters
     ----------
     rows : sequence of Ranked
-        Best first; a parameter is averaged over the candidates in which it
-        has the same role and unit as in the best candidate that has it.
-        Each row needs ``akaike_weight`` and a ``fit`` with ``values``,
-        ``stderr``, ``roles``, ``units`` and ``free_names``.
+        Best first. Each row needs ``name``, ``akaike_weight`` and a ``fit``
+        with ``values``, ``stderr``, ``roles``, ``units`` and
+        ``free_names``.
 
     Returns
     -------
     tuple of ModelAverage
-        One per parameter shared by at least two candidates.
+        One per parameter estimated by at least two candidates with weight,
+        with the same role and unit as in the best candidate that estimates
+        it (see the module notes); and one, with ``n_candidates`` 1 and that
+        candidate's own estimate, for a parameter that only one candidate
+        estimates while others of weight at least :data:`NOTABLE_WEIGHT`
+        fix it, so that a report can say why it is not averaged.
     """
     names = []
     for row in rows:
@@ -234,25 +275,29 @@ def model_averages(rows):
                 names.append(n)
     out = []
     for name in names:
-        holders = [r for r in rows if name in r.fit.values]
-        role = holders[0].fit.roles[name]
-        unit = holders[0].fit.units.get(name)
-        same = [r for r in holders if r.fit.roles.get(name) == role
-                and r.fit.units.get(name) == unit and r.akaike_weight > 0]
-        if len(same) < 2:
+        holders = [r for r in rows if name in r.fit.values and r.akaike_weight > 0]
+        estimating = [r for r in holders if name in r.fit.free_names]
+        if not estimating:
             continue
-        w = np.array([r.akaike_weight for r in same])
+        role = estimating[0].fit.roles[name]
+        unit = estimating[0].fit.units.get(name)
+        same = [r for r in estimating if r.fit.roles.get(name) == role
+                and r.fit.units.get(name) == unit]
+        left_out = tuple(r.name for r in holders if r.akaike_weight >= NOTABLE_WEIGHT
+                         and all(r is not x for x in same))
+        if len(same) < 2 and not left_out:
+            continue
+        total = float(sum(r.akaike_weight for r in same))
+        w = np.array([r.akaike_weight for r in same]) / total
         values = np.array([r.fit.values[name] for r in same])
-        errors = []
-        for r in same:
-            se = r.fit.stderr.get(name)
-            errors.append(0.0 if name not in r.fit.free_names else
-                          (math.nan if se is None else se))
-        errors = np.array(errors)
-        total = float(w.sum())
-        mean = float(np.sum(w * values) / total)
-        spread = np.sqrt(errors ** 2 + (values - mean) ** 2)
-        stderr = float(np.sum(w * spread) / total)
-        out.append(ModelAverage(name, role, unit or "", mean,
-                                stderr if math.isfinite(stderr) else None, total, len(same)))
+        variances = np.array([math.nan if r.fit.stderr.get(name) is None
+                              else r.fit.stderr[name] ** 2 for r in same])
+        mean = float(np.sum(w * values))
+        # Burnham & Anderson (2002) eq. 4.9: var = [Σ w_i sqrt(var_i + (θ_i − θ̄)²)]²
+        variance = float(np.sum(w * np.sqrt(variances + (values - mean) ** 2))) ** 2
+        stderr = math.sqrt(variance) if math.isfinite(variance) else None
+        out.append(ModelAverage(
+            name, role, unit or "", mean, stderr, total, len(same),
+            candidates=tuple((r.name, float(wi)) for r, wi in zip(same, w)),
+            left_out=left_out))
     return tuple(out)

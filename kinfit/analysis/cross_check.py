@@ -6,12 +6,21 @@ same runs, compared with the orders and k of the best candidate that has a
 single irreversible step (:func:`check_against_initial_rates`). The fitted
 orders carry the fit's standard errors (:func:`fitted_orders`); a difference
 of more than ``AGREEMENT_Z`` combined standard errors is a warning.
+
+The check is only as good as the initial rates. When in some run even the
+fewest points that give an initial rate with a standard error already reach
+beyond the conversion window (sparse early sampling: the first reading after
+t = 0 may already lie past it), those rates are biased by an amount the
+method cannot estimate, and a difference from the fit says nothing about the
+fit. The check then reports **cannot check**, with the runs and conversions
+as the reason, instead of agreement or disagreement; the numbers are still
+shown.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -43,8 +52,11 @@ class CrossCheck:
         k from the initial rates with the orders fixed at the fitted ones,
         beside the fitted k: keys ``name``, ``unit``, ``initial_rates``,
         ``initial_rates_stderr``, ``time_course``, ``time_course_stderr``,
-        ``z`` (on ln k), ``agrees``.
+        ``z`` (on ln k), ``agrees`` (None when it cannot be checked).
     warnings : tuple of str
+    cannot_check : str or None
+        Why agreement cannot be judged (initial rates from beyond the
+        conversion window); then every ``agrees`` is None.
     """
 
     candidate: str
@@ -52,6 +64,17 @@ class CrossCheck:
     orders: tuple[OrderCheck, ...]
     rate_constant: dict | None
     warnings: tuple[str, ...] = ()
+    cannot_check: str | None = None
+
+    @property
+    def status(self):
+        """The verdict: "cannot check", "disagree" (a comparison differs), or "agree"
+        otherwise."""
+        if self.cannot_check:
+            return "cannot check"
+        agrees = [c.agrees for c in self.orders] + [
+            (self.rate_constant or {}).get("agrees")]
+        return "disagree" if any(a is False for a in agrees) else "agree"
 
     def to_dict(self):
         """Plain-Python form (the ``initial_rates`` part of ``ranking.json``)."""
@@ -60,6 +83,8 @@ class CrossCheck:
         out["orders"] = [vars(c).copy() for c in self.orders]
         out["rate_constant"] = self.rate_constant
         out["agreement_limit_z"] = AGREEMENT_Z
+        out["status"] = self.status
+        out["cannot_check"] = self.cannot_check
         out["warnings"] = list(self.warnings)
         return out
 
@@ -123,10 +148,13 @@ def check_against_initial_rates(rows, experiment, max_conversion):
         return ("no candidate has a single irreversible step, so the initial-rates "
                 "cross-check was skipped")
     result = initial_rates(experiment, mech, max_conversion=max_conversion)
+    cannot = _beyond_window(result)
     warnings, orders, k_check = [], (), None
     fitted = fitted_orders(row.fit)
     if result.regression is not None:
         orders = check_orders(result.regression, fitted)
+        if cannot:
+            orders = tuple(replace(c, agrees=None) for c in orders)
         for c in orders:
             if c.agrees is False:
                 warnings.append(
@@ -146,7 +174,7 @@ def check_against_initial_rates(rows, experiment, max_conversion):
         z = agrees = None
         if ln_se_ir is not None and math.hypot(ln_se_ir, ln_se_fit) > 0:
             z = (math.log(k_ir) - math.log(fit_k)) / math.hypot(ln_se_ir, ln_se_fit)
-            agrees = abs(z) <= AGREEMENT_Z
+            agrees = None if cannot else abs(z) <= AGREEMENT_Z
         k_check = {"name": k_name if law.factor == 1 else f"{law.factor:g}·{k_name}",
                    "unit": row.fit.units.get(k_name), "initial_rates": k_ir,
                    "initial_rates_stderr": k_ir_se, "time_course": fit_k,
@@ -160,4 +188,23 @@ def check_against_initial_rates(rows, experiment, max_conversion):
         warnings.append("initial rates from sparse early points are biased; the time-course "
                         "fit uses every point, but a disagreement can also mean the rate law "
                         "changes during the reaction (product inhibition, catalyst decay)")
-    return CrossCheck(row.name, result, orders, k_check, tuple(warnings))
+    if cannot:
+        warnings.append(f"the initial-rates cross-check cannot check the fit: {cannot}")
+    return CrossCheck(row.name, result, orders, k_check, tuple(warnings), cannot)
+
+
+def _beyond_window(result):
+    """Why the initial rates cannot test the fit, or None: runs whose rate comes from
+    points beyond the conversion window."""
+    beyond = [r for r in result.rates if r.rate is not None and r.conversion is not None
+              and r.conversion > result.max_conversion]
+    if not beyond:
+        return None
+    low, high = (100 * min(r.conversion for r in beyond),
+                 100 * max(r.conversion for r in beyond))
+    span = f"{low:.0f} %" if round(low) == round(high) else f"{low:.0f}–{high:.0f} %"
+    return (f"the initial rates of run(s) {', '.join(r.run for r in beyond)} come from "
+            f"points reaching {span} conversion, beyond the "
+            f"{100 * result.max_conversion:.0f} % window, and are biased by an amount the "
+            f"method cannot estimate, so a difference from the fit would not mean the fit "
+            f"is wrong; sample more densely near t = 0 to make the check")

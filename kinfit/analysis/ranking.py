@@ -211,7 +211,7 @@ class Comparison:
             "noise": "declared" if self.noise_declared else "estimated",
             "candidates": [r.to_dict() for r in self.candidates],
             "nested_tests": [vars(t).copy() for t in self.nested],
-            "model_averages": [vars(a).copy() for a in self.averages],
+            "model_averages": [a.to_dict() for a in self.averages],
             "verdicts": list(self.verdict),
             "warnings": list(self.warnings),
             "separation": self.separation,

@@ -16,22 +16,23 @@ are never shrunk below what the per-temperature errors give, which four
 points could otherwise easily do by chance (:meth:`LineFit.uncertainty`).
 :class:`LineFit` also keeps the scatter-scaled covariance, which is what
 scipy's ``linregress`` and statsmodels' WLS report (tested against both).
-With free orders at each temperature the method
-ignores that the runs share their orders, so its intervals are usually wider
-than the global fit's.
-
-Why the global fit shares its orders: if an order changed with temperature,
-k would carry different units at different temperatures and its temperature
-dependence would not be one Arrhenius quantity. ``orders="free"`` fits the
-orders at each temperature as a check, and :func:`order_differences`
-reports any that differ from the shared ones by more than 3 combined
-standard errors.
+Why the orders are the global fit's by default (``orders="global"``): if
+an order changed with temperature, k would carry different units at
+different temperatures and its temperature dependence would not be one
+Arrhenius quantity. Fitting each temperature with its own orders
+(``orders="free"``, the classic two-stage method) regresses ln k across rate
+constants whose units differ wherever the fitted orders differ, and it
+ignores that the runs share their orders, so its intervals are wider and its
+Ea can move far from the global fit's. With free orders the analysis therefore states the unit of
+k at each temperature when they differ (a note of each rate constant), and
+:func:`order_differences` reports any order that differs from the shared one
+by more than 3 combined standard errors.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -43,6 +44,7 @@ from kinfit.analysis.activation import (
     run_temperatures,
     si_factor,
 )
+from kinfit.core.defaults import DEFAULT_TWO_STAGE
 from kinfit.core.errors import KinfitError
 from kinfit.estimation.least_squares import fit
 from kinfit.inputs.parameters import Role
@@ -186,6 +188,10 @@ class TemperatureGroup:
         The group's fitted rate constants and orders.
     success : bool
     warnings : tuple of str
+    units : dict of str to str or None
+        Unit of each rate constant at this temperature, from the group's
+        own overall order (with free orders it differs between groups
+        whose orders differ).
     """
 
     temperature: float
@@ -194,6 +200,7 @@ class TemperatureGroup:
     stderr: dict[str, float | None]
     success: bool
     warnings: tuple[str, ...] = ()
+    units: dict[str, str | None] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -276,8 +283,9 @@ class TwoStage:
         return {
             "orders": self.orders, "level": self.level,
             "groups": [{"temperature_K": g.temperature, "runs": list(g.runs),
-                        "values": g.values, "stderr": g.stderr, "success": g.success,
-                        "warnings": list(g.warnings)} for g in self.groups],
+                        "values": g.values, "stderr": g.stderr, "units": g.units,
+                        "success": g.success, "warnings": list(g.warnings)}
+                       for g in self.groups],
             "rate_constants": [law.to_dict() for law in self.laws],
         }
 
@@ -296,7 +304,7 @@ def _stage_mechanism(mech, result, orders):
     return replace(mech, parameters=params, temperature=None)
 
 
-def two_stage(experiment, mechanism, result=None, orders="free", starts=4, seed=0,
+def two_stage(experiment, mechanism, result=None, orders=DEFAULT_TWO_STAGE, starts=4, seed=0,
               level=0.95):
     """Fit k at each temperature, then Arrhenius and Eyring straight lines.
 
@@ -308,13 +316,17 @@ def two_stage(experiment, mechanism, result=None, orders="free", starts=4, seed=
         With a ``[temperature]`` table.
     result : FitResult, optional
         The global fit: its k(T) start each group's fit, and its orders are
-        used when `orders` is "global".
-    orders : {"free", "global"}
-        "free": each temperature's runs get their own orders (shared by the
-        runs of that temperature) -- the classic two-stage method, and a
-        check on whether the orders really stay the same. "global": orders
-        fixed at the global fit's values, so only rate constants (and any
-        per-run parameters) are fitted at each temperature.
+        used when `orders` is "global" (fitted here, with `starts` and
+        `seed`, when not given then).
+    orders : {"global", "free"}
+        "global" (the default, :data:`~kinfit.core.defaults.DEFAULT_TWO_STAGE`):
+        orders fixed at the global fit's values, so only rate constants (and
+        any per-run parameters) are fitted at each temperature and every k
+        has the same unit. "free": each temperature's runs get their own
+        orders (shared by the runs of that temperature) -- the classic
+        two-stage method, and a check on whether the orders really stay the
+        same; k then has a different unit at each temperature where the
+        orders differ, which the notes state.
     starts, seed : int
         Passed to :func:`kinfit.estimation.least_squares.fit` for each group.
     level : float
@@ -327,9 +339,6 @@ def two_stage(experiment, mechanism, result=None, orders="free", starts=4, seed=
     if orders not in ORDERS:
         raise KinfitError(f"two-stage orders must be one of {', '.join(ORDERS)}, "
                           f"got {orders!r}")
-    if orders == "global" and result is None:
-        raise KinfitError("the two-stage analysis with orders fixed at the global values "
-                          "needs the global fit")
     spec = mechanism.temperature
     if spec is None:
         raise KinfitError(f"{mechanism.source}: the model declares no temperature dependence")
@@ -337,6 +346,8 @@ def two_stage(experiment, mechanism, result=None, orders="free", starts=4, seed=
     if temps.size < 2:
         raise KinfitError(f"{experiment.source}: the two-stage analysis needs runs at two or "
                           f"more temperatures (four or more is common practice)")
+    if orders == "global" and result is None:
+        result = fit(experiment, mechanism, starts=starts, seed=seed)
     stage_mech = _stage_mechanism(mechanism, result, orders)
     groups = []
     for t in temps:
@@ -361,7 +372,8 @@ def two_stage(experiment, mechanism, result=None, orders="free", starts=4, seed=
             temperature=float(t), runs=tuple(r.name for r in runs),
             values={n: fitted.values[n] for n in keep},
             stderr={n: fitted.stderr.get(n) for n in keep},
-            success=fitted.success, warnings=fitted.warnings))
+            success=fitted.success, warnings=fitted.warnings,
+            units={law.constant: fitted.units.get(law.constant) for law in spec.laws}))
     laws = tuple(_stage_two(groups, law, spec.kappa, experiment, mechanism, result, level)
                  for law in spec.laws)
     analysis = TwoStage(orders=orders, groups=tuple(groups), laws=laws, level=level)
@@ -381,6 +393,15 @@ def _stage_two(groups, law, kappa, experiment, mechanism, result, level):
     if len(used) < 2:
         raise KinfitError(f"the two-stage analysis got a usable {law.constant} at fewer than "
                           f"two temperatures; see the warnings of the per-temperature fits")
+    units = {g.units.get(law.constant) for g in used}
+    if len(units) > 1:
+        notes.append(f"the orders fitted at each temperature differ, so {law.constant} has a "
+                     f"different unit at each ("
+                     + ", ".join(f"{g.units.get(law.constant)} at {g.temperature:.2f} K"
+                                 for g in used)
+                     + f"); ln {law.constant} across them is not one Arrhenius quantity, so "
+                       f"these lines mean something only where the orders agree within "
+                       f"error; --two-stage global keeps the global fit's orders")
     temps = np.array([g.temperature for g in used])
     k = np.array([g.values[law.constant] for g in used])
     se = np.array([g.stderr[law.constant] for g in used])
@@ -461,6 +482,8 @@ def order_differences(analysis, result, threshold=3.0):
                 out.append(f"{name} = {group.values[name]:.3g} ± {se:.2g} at "
                            f"{group.temperature:.2f} K differs from the shared "
                            f"{result.values[name]:.3g} ± {se_global:.2g} by {abs(z):.1f} "
-                           f"standard errors: the orders may change with temperature, and "
-                           f"then k at different temperatures is not one Arrhenius quantity")
+                           f"combined standard errors: the orders may change with "
+                           f"temperature, and then k has different units at different "
+                           f"temperatures and is not one Arrhenius quantity (neither the "
+                           f"global fit nor the two-stage lines hold)")
     return tuple(out)

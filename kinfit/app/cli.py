@@ -36,6 +36,7 @@ from kinfit.core.defaults import (
     DEFAULT_SEED,
     DEFAULT_STARTS,
     DEFAULT_STEPS,
+    DEFAULT_TWO_STAGE,
     DEFAULT_WALKERS,
     LATTICE_STARTS,
 )
@@ -114,7 +115,7 @@ def fit_command(
              "estimated (per-species). auto: declared if the experiment declares noise, "
              "else shared."),
     two_stage: Literal["free", "global", "none"] = typer.Option(
-        "free", "--two-stage",
+        DEFAULT_TWO_STAGE, "--two-stage",
         help="For a model with a [temperature] table: the two-stage analysis beside the "
              "global fit, with free orders at each temperature, orders fixed at the global "
              "fit's values, or none."),

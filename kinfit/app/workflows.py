@@ -25,6 +25,7 @@ from kinfit.core.defaults import (
     DEFAULT_SEED,
     DEFAULT_STARTS,
     DEFAULT_STEPS,
+    DEFAULT_TWO_STAGE,
     DEFAULT_WALKERS,
     LATTICE_STARTS,
 )
@@ -137,7 +138,7 @@ def _temperature_analysis(result, two_stage, seed, posterior):
     return activations, analysis
 
 
-def fit_folder(result, *, two_stage="free", seed=DEFAULT_SEED, wavelengths=None,
+def fit_folder(result, *, two_stage=DEFAULT_TWO_STAGE, seed=DEFAULT_SEED, wavelengths=None,
                posterior=None, provenance=None):
     """Assemble the output folder of a fit: the one place this is done.
 
@@ -184,7 +185,7 @@ def fit_folder(result, *, two_stage="free", seed=DEFAULT_SEED, wavelengths=None,
 
 
 def fit_workflow(experiment, mechanism, *, starts=DEFAULT_STARTS, seed=DEFAULT_SEED,
-                 two_stage="free", components=None, wavelengths=None, noise="auto",
+                 two_stage=DEFAULT_TWO_STAGE, components=None, wavelengths=None, noise="auto",
                  command=None):
     """Fit a model to every run of an experiment; the ``kinfit fit`` command.
 
@@ -244,7 +245,7 @@ def sample_workflow(experiment, mechanism, *, seed=DEFAULT_SEED, chain_file=None
                     "noise": options.get("noise", "auto"),
                     "moves": options.get("moves", DEFAULT_MOVES),
                     "starts": options.get("starts", DEFAULT_STARTS)}
-        folder = fit_folder(post.fit, two_stage="free", seed=seed, posterior=post,
+        folder = fit_folder(post.fit, two_stage=DEFAULT_TWO_STAGE, seed=seed, posterior=post,
                             provenance=provenance_of(post.fit.experiment, post.fit.mechanism,
                                                      seed, settings, command))
         bundle = folder.bundle | bundle

@@ -60,7 +60,7 @@ from kinfit.estimation.noise import (
     resolved_mode,
     species_levels,
 )
-from kinfit.estimation.residual_checks import check_residuals
+from kinfit.estimation.residual_checks import check_residuals, summarize_checks
 from kinfit.estimation.run_warnings import run_warnings
 from kinfit.estimation.scale import ScaledProblem, fit_scale
 from kinfit.inputs.mechanism import format_rate_law
@@ -76,7 +76,8 @@ if TYPE_CHECKING:
     from kinfit.inputs.mechanism import Mechanism
     from kinfit.numerics.problem import Problem
 
-__all__ = ["FitResult", "ProblemSettings", "fit", "parameter_unit"]
+__all__ = ["FitResult", "ProblemSettings", "fit", "parameter_unit",
+           "rate_constant_warnings"]
 
 _SCREEN_RHS = 5_000
 
@@ -256,6 +257,12 @@ class FitResult:
         the noise is declared."""
         return None if self.noise_declared else max(self.n_points - self.n_free, 1)
 
+    @property
+    def residual_check_summary(self):
+        """What the residual checks judged (see
+        :func:`kinfit.estimation.residual_checks.summarize_checks`)."""
+        return summarize_checks(self.residual_checks)
+
     def rate_laws(self, digits=3):
         """Each direction's rate law with fitted orders.
 
@@ -363,6 +370,7 @@ class FitResult:
             "signals": None if self.signals is None else self.signals.to_dict(),
             "residual_checks": [c.to_dict() for c in self.residual_checks],
             "runs": [_run_conditions(run) for run in self.experiment.runs],
+            "residual_check_summary": self.residual_check_summary,
         }
 
 
@@ -535,6 +543,7 @@ def _result(evaluator, u, success, message, n_starts, at_best, failed, settings)
     # Per-run warnings (kinfit.estimation.run_warnings): steps a run cannot start, a run
     # that carries the misfit, a reference temperature outside the runs.
     warnings += run_warnings(mech, exp, values, res)
+    warnings += rate_constant_warnings(mech, values, stderr, units)
     return FitResult(
         mechanism=mech, experiment=exp, values=values, stderr=stderr, units=units,
         roles=roles, free_names=scale.names, covariance=covariance, correlation=correlation,
@@ -633,6 +642,60 @@ def _fit_warnings(problem, values, at_bounds, n_starts, at_best, stats, signal_w
     if not success:
         warnings.append(f"the optimiser did not report convergence: {message}")
     return warnings
+
+
+# ------------------------------------------- rate constants the data barely pin down
+
+_Z95 = 1.959963984540054     # two-sided 95 % normal quantile (scipy.stats.norm.ppf(0.975))
+
+
+def rate_constant_warnings(mechanism, values, stderr, units):
+    """Fitted rate constants whose 95 % interval includes zero or spans over a factor of ten.
+
+    The interval is the one the reports show beside the standard error,
+    k ± 1.96 se (covariance, delta method). One that reaches zero means the
+    data do not show the step at all; one whose ends differ by more than a
+    factor of ten (se/k above about 0.42) means they hardly measure it. Each
+    warning names the rate constant and the step(s) it belongs to, and
+    suggests the model without that step (or, for a reverse rate constant,
+    with the step irreversible), to be compared with this one by a ranking.
+
+    Parameters
+    ----------
+    mechanism : Mechanism
+    values, stderr, units : dict of str
+        Of the fit (see :class:`FitResult`).
+
+    Returns
+    -------
+    list of str
+    """
+    out = []
+    for name, par in mechanism.parameters.items():
+        se = stderr.get(name)
+        if par.role != Role.RATE_CONSTANT or not par.vary or se is None or not se > 0:
+            continue
+        k = values[name]
+        lo, hi = k - _Z95 * se, k + _Z95 * se
+        span = f"[{lo:.2g}, {hi:.2g}] {units.get(name) or ''}".rstrip()
+        if lo <= 0:
+            what = f"its 95 % interval {span} includes zero: the data do not show this step"
+        elif hi / lo > 10:
+            what = (f"its 95 % interval {span} spans a factor of {hi / lo:.0f}: the data "
+                    f"hardly measure it")
+        else:
+            continue
+        uses = [(mechanism.steps[i], sign) for i, law, sign in mechanism.directions
+                if law.constant == name]
+        if len(mechanism.steps) > 1 or any(sign < 0 for _, sign in uses):
+            options = [f"with {step.label} ({step.reaction.text}) irreversible" if sign < 0
+                       else f"without {step.label} ({step.reaction.text})" for step, sign in uses]
+            advice = (f"try the model {' and '.join(options)}, and rank the two (kinfit rank "
+                      f"with both model files)")
+        else:
+            advice = "runs over a longer time or a wider range of concentrations would pin it down"
+        out.append(f"{name} = {k:.3g} ± {se:.2g}: {what}; {advice}")
+    return out
 
 
 # Unit of each role, from the experiment's units and the overall order of the

@@ -73,6 +73,7 @@ def format_fit(result, cautions=True):
     strong = _strong_correlations(result)
     if strong:
         out.append(f"     strong correlations: {', '.join(strong)}")
+    out += _residual_check_lines(result)
     return "\n".join(out + closing_lines(result.warnings, cautions))
 
 
@@ -140,6 +141,19 @@ def _initial_species(runs):
 
 def _measured(run):
     return list(run.species) + (["spectra"] if run.spectrum is not None else [])
+
+
+def _residual_check_lines(result):
+    """The residual checks' heading, tests and rule, and each trace not called fine."""
+    if not result.residual_checks:
+        return []
+    summary = result.residual_check_summary
+    out = ["", f"Residual checks: {summary['heading']}"]
+    out += wrapped(f"{summary['tests']}; {summary['rule']}", "  ", "  ")
+    for c in result.residual_checks:
+        if c.misfit or not c.judged:
+            out += wrapped(f"{c.run} {c.species}: {c.verdict}")
+    return out
 
 
 def _strong_correlations(result, limit=0.9):

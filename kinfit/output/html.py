@@ -309,19 +309,27 @@ def _runs(page, data):
 
 
 def _residual_checks(folder, data):
-    checks = (data["result"] or {}).get("residual_checks")
+    result = data["result"] or {}
+    checks = result.get("residual_checks")
     if not checks:
         return []
-    rows = [[c["run"], c["species"], c["n"], c["runs"], _num(c.get("z"), 3),
-             _num(c.get("p_few_runs"), 2), _num(c.get("autocorrelation"), 2), c["verdict"]]
+    rows = [[c["run"], c["species"], c["n"],
+             f"{c.get('n_positive', '–')}/{c.get('n_negative', '–')}", c["runs"], _num(c.get("expected_runs"), 3),
+             _num(c.get("p_few_runs"), 2), _num(c.get("autocorrelation"), 2),
+             _num(c.get("p_autocorrelation"), 2), c["verdict"]]
             for c in checks]
-    misfit = [c for c in checks if c.get("misfit")]
-    verdict = (f"{len(misfit)} of {len(checks)} traces show systematic misfit (runs test, "
-               f"p < 0.01): the model may be missing a feature of the data."
-               if misfit else "No trace shows systematic misfit (runs test, p ≥ 0.01).")
-    return [_text("warning" if misfit else "text", verdict),
-            _table(["run", "species", "N", "runs", "z", "p (few runs)", "lag-1 autocorr.",
-                    "verdict"], rows)]
+    summary = result.get("residual_check_summary")
+    misfit = any(c.get("misfit") for c in checks)
+    if summary:
+        blocks = [_text("warning" if misfit else "text", summary["heading"] + "."),
+                  _text("text", f"Tests: {summary['tests']}. Rule: {summary['rule']}.")]
+    else:       # a result.json written before the summary was recorded
+        blocks = [_text("warning" if misfit else "text",
+                        f"{sum(bool(c.get('misfit')) for c in checks)} of {len(checks)} "
+                        f"traces show systematic misfit (runs test, p < 0.01).")]
+    return blocks + [_table(["run", "species", "N", "+/−", "runs", "expected runs",
+                             "p (few runs, exact)", "lag-1 autocorr.", "p (lag-1)",
+                             "verdict"], rows)]
 
 
 def _posterior(page, data):

@@ -14,6 +14,7 @@ from pathlib import Path
 
 from kinfit.core.formatting import format_value
 from kinfit.core.schema import schema_json
+from kinfit.estimation.diagnostics import format_rhat
 from kinfit.output.bundle import Bundle, figure_files, write_bundle
 from kinfit.output.text import closing_lines, text_table
 
@@ -80,7 +81,7 @@ def _status_lines(diag):
     """Whether the chain converged, and if not why and what to do."""
     if diag.converged:
         return [f"CONVERGED: chain after burn-in = {diag.tau_multiple:.0f} autocorrelation "
-                f"times (50 wanted), largest R-hat {max(diag.rhat.values()):.3f} "
+                f"times (50 wanted), largest R-hat {format_rhat(max(diag.rhat.values()))} "
                 f"(≤ 1.01 wanted)"]
     out = ["NOT CONVERGED — do not report these numbers yet:"]
     for reason in diag.reasons:
@@ -93,7 +94,7 @@ def _convergence_lines(diag, n_kept):
             "  autocorrelation time τ (steps): " + ", ".join(
                 f"{n} {t:.1f}" for n, t in diag.autocorr_time.items()),
             "  effective sample size: " + ", ".join(f"{n} {e:.0f}" for n, e in diag.ess.items()),
-            "  R-hat: " + ", ".join(f"{n} {r:.3f}" for n, r in diag.rhat.items()),
+            "  R-hat: " + ", ".join(f"{n} {format_rhat(r)}" for n, r in diag.rhat.items()),
             f"  acceptance fraction {diag.acceptance_fraction:.2f} (walkers "
             f"{diag.acceptance_range[0]:.2f}–{diag.acceptance_range[1]:.2f}); burn-in "
             f"{diag.burn_in} steps discarded; thin {diag.thin}; {n_kept} samples kept"]

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 
-from kinfit.analysis.criteria import SOURCES
+from kinfit.analysis.criteria import NOTABLE_WEIGHT, SOURCES
 from kinfit.core.formatting import CAUTIONS, format_value
 from kinfit.core.schema import schema_json
 from kinfit.core.units import format_power
@@ -59,13 +59,7 @@ def format_ranking(comparison, top=10, cautions=True):
     for line in comparison.verdict:
         out += wrapped(line)
     out += _nested_lines(comparison)
-    if comparison.averages:
-        out += ["", "Model-averaged parameters (Akaike weights; unconditional standard "
-                    "error)"]
-        out += text_table([(a.name, format_value(a.value, a.stderr), a.unit, f"{a.weight:.3f}",
-                            str(a.n_candidates)) for a in comparison.averages],
-                          ("name", "value ± standard error", "unit", "weight covered",
-                           "candidates"))
+    out += _average_lines(comparison)
     if comparison.cross_check is not None:
         out += [""] + format_cross_check(comparison.cross_check)
     if comparison.warnings:
@@ -89,6 +83,33 @@ def _fit_column(comparison):
         return "χ²"
     unit = comparison.best.fit.residual_unit
     return f"RSS ({format_power(unit, 2)})" if unit else "RSS"
+
+
+def _average_lines(comparison):
+    """Model averages, each with the candidates it used and their renormalised weights."""
+    if not comparison.averages:
+        return []
+    out = ["", "Model-averaged parameters (each over the candidates that estimate it, with "
+               "Akaike weights", "renormalised among them; Burnham & Anderson's "
+               "unconditional standard error)"]
+    out += text_table([(a.name, format_value(a.value, a.stderr), a.unit,
+                        f"{a.n_candidates} ({a.weight:.3f})" if a.n_candidates > 1
+                        else "1: not averaged") for a in comparison.averages],
+                      ("name", "value ± standard error", "unit", "candidates (weight)"))
+    for a in comparison.averages:
+        shown = [(n, w) for n, w in a.candidates if w >= NOTABLE_WEIGHT]
+        used = ", ".join(f"'{_short(_label(comparison, n), 40)}' {w:.3f}" for n, w in shown)
+        if len(shown) < len(a.candidates):
+            used += f" and {len(a.candidates) - len(shown)} of weight below {NOTABLE_WEIGHT:g}"
+        only = _short(_label(comparison, a.candidates[0][0]), 40)
+        text = (f"{a.name} over {used}" if a.n_candidates > 1 else
+                f"{a.name} is estimated by '{only}' alone, so it is not averaged: the value "
+                f"and standard error are that candidate's")
+        if a.left_out:
+            text += ("; left out, as they fix it or give it another unit: "
+                     + ", ".join(f"'{_short(_label(comparison, n), 40)}'" for n in a.left_out))
+        out += wrapped(text)
+    return out
 
 
 def _nested_lines(comparison, shown_at_most=8):
@@ -141,8 +162,7 @@ def format_cross_check(check):
         out += ["", f"  Orders, beside the time-course fit of '{check.candidate}'"]
         order_rows = []
         for c in check.orders:
-            diff = "—" if c.z is None else f"{abs(c.z):.1f} se " + (
-                "(agree)" if c.agrees else "(DISAGREE)")
+            diff = "—" if c.z is None else f"{abs(c.z):.1f} se " + _verdict_word(c.agrees)
             fitted = format_value(c.time_course, c.time_course_stderr or None) + (
                 " (fixed)" if c.time_course_stderr == 0 else "")
             order_rows.append((c.species, format_value(c.initial_rates, c.initial_rates_stderr),
@@ -152,15 +172,24 @@ def format_cross_check(check):
                    f"{ir.k_unit or ''} (its orders, {reg.dof} degree(s) of freedom)")
         k = check.rate_constant
         if k is not None:
-            diff = "" if k["z"] is None else f"; {abs(k['z']):.1f} se on ln k " + (
-                "(agree)" if k["agrees"] else "(DISAGREE)")
+            diff = "" if k["z"] is None else f"; {abs(k['z']):.1f} se on ln k " + \
+                _verdict_word(k["agrees"])
             out.append(f"  {k['name']} at the fitted orders: initial rates "
                        f"{format_value(k['initial_rates'], k['initial_rates_stderr'])}, time "
                        f"course {format_value(k['time_course'], k['time_course_stderr'])} "
                        f"{k['unit'] or ''}{diff}")
     for note in ir.notes:
         out += wrapped(note, "  note: ")
+    if check.cannot_check:
+        out += wrapped("verdict: CANNOT CHECK, not a disagreement: the initial rates come "
+                       "from beyond the conversion window (note above), biased by an amount "
+                       "the method cannot estimate", "  ", "    ")
     return out
+
+
+def _verdict_word(agrees):
+    """(agree), (DISAGREE), or (cannot check) when no verdict is possible."""
+    return {True: "(agree)", False: "(DISAGREE)"}.get(agrees, "(cannot check)")
 
 
 def _species_of(rates):

@@ -110,17 +110,19 @@ def format_activation(activations, two_stage=None, cautions=True):
 
 
 def _format_two_stage(two_stage, activations):
-    how = ("its own orders" if two_stage.orders == "free"
-           else "orders fixed at the global fit's values")
+    how = ("its own orders, so that k has the unit of each temperature's own overall order"
+           if two_stage.orders == "free" else "orders fixed at the global fit's values")
     out = textwrap.wrap(f"Two-stage analysis (k fitted at each temperature with {how}, then "
                         f"weighted straight lines of ln k and ln(k/T) against 1/T)", 88,
                         subsequent_indent="  ")
     names = [n for n in two_stage.groups[0].values]
+    constants = [n for n in two_stage.groups[0].units]
     rows = []
     for g in two_stage.groups:
         rows.append((f"{g.temperature:.2f}", ", ".join(g.runs),
-                     *[format_value(g.values[n], g.stderr.get(n)) for n in names]))
-    out += text_table(rows, ("T (K)", "runs", *names))
+                     *[format_value(g.values[n], g.stderr.get(n)) for n in names],
+                     *[g.units.get(n) or "" for n in constants]))
+    out += text_table(rows, ("T (K)", "runs", *names, *[f"unit of {n}" for n in constants]))
     level = 100 * two_stage.level
     for law in two_stage.laws:
         act = next((a for a in activations if a.constant == law.constant), None)

@@ -83,24 +83,82 @@ def test_bic_evidence_for_the_best(delta, words):
     assert evidence_bic_for_best(delta) == words
 
 
-def test_model_averages_hand_computed():
-    # Burnham & Anderson (2002) eq. 4.9 (from memory), by hand: weights 0.6, 0.3
-    # (the 0.1 candidate lacks n); k̄ = (0.6·2.0 + 0.3·2.6)/0.9 = 2.2;
-    # se = [0.6·sqrt(0.1² + 0.2²) + 0.3·sqrt(0.2² + 0.4²)]/0.9
-    #    = [0.6·0.223607 + 0.3·0.447214]/0.9 = 0.298142.
-    def row(w, k, se_k, n=None, se_n=None):
-        values, stderr, roles, units = {"k": k}, {"k": se_k}, {"k": "rate constant"}, \
-            {"k": "M^-1 s^-1"}
-        if n is not None:
-            values["n"], stderr["n"], roles["n"], units["n"] = n, se_n, "order", ""
-        fit_ = SimpleNamespace(values=values, stderr=stderr, roles=roles, units=units,
-                               free_names=tuple(values))
-        return SimpleNamespace(fit=fit_, akaike_weight=w)
+def _candidate(name, w, values, stderr, fixed=(), units=None):
+    """A ranked row as model_averages reads it; parameters in `fixed` are not estimated."""
+    roles = {n: "rate constant" if n.startswith("k") else "order" for n in values}
+    units = units or {n: ("M^-1 s^-1" if n.startswith("k") else "") for n in values}
+    fit_ = SimpleNamespace(values=values, stderr={n: (None if n in fixed else stderr[n])
+                                                  for n in values},
+                           roles=roles, units=units,
+                           free_names=tuple(n for n in values if n not in fixed))
+    return SimpleNamespace(name=name, fit=fit_, akaike_weight=w)
 
-    rows = [row(0.6, 2.0, 0.1, 1.0, 0.05), row(0.3, 2.6, 0.2, 1.2, 0.1), row(0.1, 9.0, 1.0)]
-    rows[2].fit.units["k"] = "M^-2 s^-1"      # a different overall order: not averaged
+
+def test_model_averages_hand_computed():
+    # Burnham & Anderson, Model Selection and Multimodel Inference, 2nd ed. (2002),
+    # chapter 4, eq. 4.9 (from memory): θ̄ = Σ w_i θ_i and
+    # var(θ̄) = [Σ w_i sqrt(var_i + (θ_i − θ̄)²)]², over the candidates that estimate θ,
+    # with their Akaike weights renormalised. By hand:
+    #   k (estimated by all three, weights 0.5, 0.3, 0.2):
+    #     k̄ = 0.5·2.0 + 0.3·2.6 + 0.2·2.3 = 2.24
+    #     se = 0.5·sqrt(0.1² + 0.24²) + 0.3·sqrt(0.2² + 0.36²) + 0.2·sqrt(0.15² + 0.06²)
+    #        = 0.5·0.26 + 0.3·0.4118252 + 0.2·0.1615549 = 0.2858585
+    #   n (fixed at 1 by 'n=1', so over 'free' and 'wide' only, weights 0.5/0.8 = 0.625 and
+    #     0.3/0.8 = 0.375):
+    #     n̄ = 0.625·1.0 + 0.375·1.2 = 1.075
+    #     se = 0.625·sqrt(0.05² + 0.075²) + 0.375·sqrt(0.1² + 0.125²)
+    #        = 0.0563367 + 0.0600293 = 0.1163660
+    #   (with the fixed candidate counted as se 0, as before: 1.06 ± 0.1027, too sure)
+    rows = [_candidate("free", 0.5, {"k": 2.0, "n": 1.0}, {"k": 0.1, "n": 0.05}),
+            _candidate("wide", 0.3, {"k": 2.6, "n": 1.2}, {"k": 0.2, "n": 0.1}),
+            _candidate("n=1", 0.2, {"k": 2.3, "n": 1.0}, {"k": 0.15, "n": 0.0}, fixed=("n",)),
+            _candidate("other", 0.0, {"k": 9.0}, {"k": 1.0}, units={"k": "M^-2 s^-1"})]
     averages = {a.name: a for a in model_averages(rows)}
-    k = averages["k"]
-    assert k.value == pytest.approx(2.2) and k.stderr == pytest.approx(0.298142, rel=1e-5)
-    assert k.weight == pytest.approx(0.9) and k.n_candidates == 2
-    assert averages["n"].value == pytest.approx((0.6 * 1.0 + 0.3 * 1.2) / 0.9)
+    k, n = averages["k"], averages["n"]
+    assert k.value == pytest.approx(2.24, rel=1e-12)
+    assert k.stderr == pytest.approx(0.2858585, rel=1e-6)
+    assert k.n_candidates == 3 and k.weight == pytest.approx(1.0) and k.left_out == ()
+    assert n.value == pytest.approx(1.075, rel=1e-12)
+    assert n.stderr == pytest.approx(0.1163660, rel=1e-6)
+    assert n.candidates == (("free", pytest.approx(0.625)), ("wide", pytest.approx(0.375)))
+    assert n.left_out == ("n=1",) and n.weight == pytest.approx(0.8)
+    data = n.to_dict()
+    assert data["candidates"][0] == {"name": "free", "weight": pytest.approx(0.625)}
+    assert data["left_out"] == ["n=1"]
+
+
+def test_an_order_estimated_by_one_candidate_is_not_averaged():
+    # An order search: the free-order candidate estimates m = 1.0010 ± 0.0063, the
+    # fixed-order candidate m = 1 has most of the weight. Averaging the two (the fixed one
+    # as ± 0) gave a spuriously small error; now m is not averaged: the free fit's own
+    # estimate and error stand, and the fixed candidate is named as left out.
+    rows = [_candidate("m=1", 0.7, {"k": 0.05, "m": 1.0}, {"k": 0.001, "m": 0.0},
+                       fixed=("m",)),
+            _candidate("free", 0.3, {"k": 0.0502, "m": 1.0010}, {"k": 0.002, "m": 0.0063},
+                       units={"k": "M^-1.001 s^-1", "m": ""})]
+    averages = {a.name: a for a in model_averages(rows)}
+    m = averages["m"]
+    assert (m.n_candidates, m.value, m.stderr) == (1, 1.0010, 0.0063)
+    assert m.candidates == (("free", 1.0),) and m.left_out == ("m=1",)
+    # k has another unit in each candidate: not averaged either
+    assert averages["k"].n_candidates == 1 and averages["k"].left_out == ("free",)
+
+
+def test_a_ranking_averages_only_over_candidates_that_estimate(small_ranking):
+    from kinfit.output.ranking import format_ranking
+
+    comparison, _, _ = small_ranking
+    assert comparison.averages
+    for a in comparison.averages:
+        for name, _w in a.candidates:
+            assert a.name in comparison[name].fit.free_names
+        for name in a.left_out:
+            fit_ = comparison[name].fit
+            assert a.name not in fit_.free_names or fit_.units[a.name] != a.unit
+        assert sum(w for _, w in a.candidates) == pytest.approx(1.0)
+    m = next(a for a in comparison.averages if a.name == "m")
+    free = comparison["A + B -> P, free orders"].fit
+    assert (m.value, m.stderr) == (free.values["m"], free.stderr["m"])
+    text = format_ranking(comparison)
+    assert "m is estimated by 'A + B -> P, free orders' alone, so it is not averaged" in text
+    assert comparison.to_dict()["model_averages"][0]["candidates"]

@@ -102,15 +102,56 @@ def test_order_differences_are_reported(arrhenius_study):
     shifted = dataclasses.replace(study["result"], values={**study["result"].values, "m": 1.5})
     messages = order_differences(study["two_stage"], shifted)
     assert len(messages) == 4 and "may change with temperature" in messages[0]
+    assert "combined standard errors" in messages[0]
+    assert "k has different units at different temperatures" in messages[0]
     assert order_differences(study["two_stage"], study["result"]) == ()
+
+
+def test_the_default_is_the_global_orders(arrhenius_study):
+    # The default two-stage analysis keeps the global fit's orders, so every k has one
+    # unit; without the global fit it is fitted first.
+    import inspect
+
+    from kinfit.core.defaults import DEFAULT_TWO_STAGE
+
+    study = arrhenius_study
+    assert DEFAULT_TWO_STAGE == "global"
+    assert inspect.signature(two_stage).parameters["orders"].default == DEFAULT_TWO_STAGE
+    analysis = two_stage(study["experiment"], study["mechanism"], starts=1)
+    assert analysis.orders == "global"
+    assert all(g.values["m"] == pytest.approx(study["result"].values["m"], rel=1e-6)
+               for g in analysis.groups)
+    assert len({g.units["k"] for g in analysis.groups}) == 1
+    assert not any("different unit" in n for n in analysis.law("k").notes)
+
+
+def test_free_orders_state_the_units_of_k_at_each_temperature(arrhenius_study):
+    # With its own order at each temperature, k at each temperature has the unit of that
+    # temperature's overall order: ln k across them mixes units, and the output says so.
+    from kinfit.output.temperature import format_activation
+
+    study = arrhenius_study
+    analysis = study["two_stage"]
+    assert analysis.orders == "free"
+    units = [g.units["k"] for g in analysis.groups]
+    for g, unit in zip(analysis.groups, units):
+        # unit of a rate constant of overall order m: M^(1−m) s^-1
+        assert unit == study["experiment"].units.rate_constant(g.values["m"])
+    assert len(set(units)) == 4
+    (note,) = [n for n in analysis.law("k").notes if "different unit" in n]
+    assert all(f"{u} at {g.temperature:.2f} K" in note for g, u in zip(analysis.groups, units))
+    assert "not one Arrhenius quantity" in note and "--two-stage global" in note
+    text = " ".join(format_activation(activation_parameters(study["result"]), analysis)
+                    .split())
+    assert "k has the unit of each temperature's own overall order" in text
+    assert "unit of k" in text and units[0] in text
+    assert analysis.to_dict()["groups"][0]["units"] == {"k": units[0]}
 
 
 def test_errors(arrhenius_study):
     study = arrhenius_study
     with pytest.raises(KinfitError, match="orders must be one of free, global"):
         two_stage(study["experiment"], study["mechanism"], orders="both")
-    with pytest.raises(KinfitError, match="needs the global fit"):
-        two_stage(study["experiment"], study["mechanism"], orders="global")
     with pytest.raises(KinfitError, match="at least two points"):
         weighted_line([1.0], [2.0])
     with pytest.raises(KinfitError, match="different x"):

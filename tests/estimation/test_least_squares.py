@@ -185,3 +185,71 @@ def test_result_json_contract(demo_result):
     assert set(d["statistics"]) >= {"n_data", "n_params", "chisqr", "aic", "aicc", "bic"}
     assert d["statistics"]["n_data"] == 300 and d["statistics"]["n_params"] == 4
     assert len(d["correlation"]["matrix"]) == 4
+
+
+TWO_STEPS = """
+    [[steps]]
+    reaction = "A -> B"
+    rate = "k1 * [A]"
+    [[steps]]
+    reaction = "B -> C"
+    rate = "k2 * [B]"
+    [parameters]
+    k1 = { value = 0.01, min = 0 }
+    k2 = { value = 0.001, min = 0 }
+"""
+
+
+def test_a_rate_constant_consistent_with_zero_is_warned_about(tmp_path):
+    # Seeded data of A -> B -> C whose second step is too slow to show (k2 = 1e-5 per
+    # minute over an hour): the fit's k2 is consistent with zero, and the warning says
+    # so, names k2 and suggests the model without B -> C.
+    mech = mechanism_from_text(TWO_STEPS)
+    rng = np.random.default_rng(808)
+    t = np.linspace(0.0, 60.0, 16)
+    rows, runs = [], []
+    for run, a0 in (("r1", 1.0), ("r2", 2.0)):
+        true = simulate(mech, {"A": a0}, {"k1": 0.05, "k2": 1e-5}, t)
+        for s in ("A", "B"):
+            rows += [f"{run},{ti:g},{s},{v:.6f}"
+                     for ti, v in zip(t, true[s] + rng.normal(0.0, 0.01, t.size))]
+        runs.append(f'[[runs]]\nname = "{run}"\ninitial = {{ A = {a0} }}\n')
+    write(tmp_path, "t.csv", "run,time,species,value\n" + "\n".join(rows) + "\n")
+    write(tmp_path, "e.toml", '[units]\ntime = "min"\nconcentration = "mM"\n[data]\n'
+                              'file = "t.csv"\n' + "\n".join(runs))
+    result = fit(load_experiment(tmp_path / "e.toml"), mech, starts=4)
+    k2, se = result.values["k2"], result.stderr["k2"]
+    assert k2 - 1.96 * se < 0
+    (warning,) = [w for w in result.warnings if w.startswith("k2 = ")]
+    assert "95 % interval" in warning and "min^-1 includes zero" in warning
+    assert "without steps[2] (B -> C)" in warning and "kinfit rank" in warning
+    assert not any(w.startswith("k1 = ") for w in result.warnings)
+    assert warning in result.to_dict()["warnings"]
+
+
+def test_a_rate_constant_spanning_a_factor_of_ten_is_warned_about():
+    # By hand: k = 1, se = 0.45 gives 1 ± 1.96·0.45 = [0.118, 1.882], a factor of 15.9;
+    # se = 0.40 gives [0.216, 1.784], a factor of 8.3 (no warning).
+    from kinfit.estimation.least_squares import rate_constant_warnings
+
+    mech = mechanism_from_text(TWO_STEPS)
+    units = {"k1": "s^-1", "k2": "s^-1"}
+    (warning,) = rate_constant_warnings(mech, {"k1": 1.0, "k2": 1.0},
+                                        {"k1": 0.45, "k2": 0.40}, units)
+    assert warning.startswith("k1 = 1 ± 0.45: its 95 % interval [0.12, 1.9] s^-1 spans a "
+                              "factor of 16")
+    assert "without steps[1] (A -> B)" in warning
+    # a reverse rate constant: the step made irreversible
+    reversible = mechanism_from_text('[[steps]]\nreaction = "A <=> B"\nrate = "kf*[A]"\n'
+                                     'reverse_rate = "kr*[B]"\n[parameters]\nkf = 1\nkr = 1\n')
+    (warning,) = rate_constant_warnings(reversible, {"kf": 1.0, "kr": 0.01},
+                                        {"kf": 0.01, "kr": 0.02}, {})
+    assert "kr = 0.01 ± 0.02: its 95 % interval [-0.029, 0.049] includes zero" in warning
+    assert "with steps[1] (A <=> B) irreversible" in warning
+    # a one-step model: no model without the step to suggest
+    single = mechanism_from_text('[[steps]]\nreaction = "A -> B"\nrate = "k*[A]"\n'
+                                 '[parameters]\nk = 1\n')
+    (warning,) = rate_constant_warnings(single, {"k": 1.0}, {"k": 0.6}, {})
+    assert "wider range of concentrations" in warning
+    # fixed rate constants and those without a standard error are left alone
+    assert rate_constant_warnings(single, {"k": 1.0}, {"k": None}, {}) == []

@@ -281,3 +281,16 @@ def test_each_warning_appears_once(tmp_path, demo_folder):
         (folder / name).write_text(json.dumps(data), encoding="utf-8")
     html = build_report(folder).read_text(encoding="utf-8")
     assert html.count(text) == 1
+
+
+def test_residual_checks_say_what_was_and_was_not_judged(demo_folder):
+    # The heading counts judged, misfitted and unjudged traces from result.json's summary;
+    # the tests and the rule are named; the table carries both p-values.
+    summary = json.loads((demo_folder / "result.json").read_text())["residual_check_summary"]
+    html = (demo_folder / "report.html").read_text(encoding="utf-8")
+    section = html[html.index('id="residuals"'):html.index('id="ranking"')]
+    assert summary["heading"] in section and "traces judged" in summary["heading"]
+    assert "exact runs test" in section and "Ljung–Box" in section
+    assert "too short to judge where neither does and the runs test could not reach" in \
+        section
+    assert "p (few runs, exact)" in section and "p (lag-1)" in section

@@ -218,6 +218,7 @@ def test_fit_command_on_the_temperature_example(temperature_fit):
     assert data["activation"][0]["temperature_range_K"] == [288.15, 318.15]
     assert "Caution (temperature)" in (out / "summary.txt").read_text()
     _known_results(out)
+    assert data["two_stage"]["orders"] == "global"      # the default, DEFAULT_TWO_STAGE
 
 
 def test_simulate_from_the_fit_flags_extrapolation(tmp_path, temperature_fit):
@@ -302,7 +303,8 @@ def test_fit_with_a_run_without_temperature(tmp_path):
 def test_two_stage_that_cannot_run_is_skipped_with_a_warning(tmp_path):
     # One run at each of two temperatures, 3 points each, with a fitted starting
     # concentration: the global fit has 5 parameters for 6 points, but each stage-one fit
-    # would have 3 (k, m, A0) for 3 points, so the two-stage analysis cannot run.
+    # with free orders would have 3 (k, m, A0) for 3 points, so the two-stage analysis
+    # cannot run.
     write(tmp_path, "model.toml", """
         # A -> P, free order, Arrhenius
         [[steps]]
@@ -341,7 +343,7 @@ def test_two_stage_that_cannot_run_is_skipped_with_a_warning(tmp_path):
     out = tmp_path / "o"
     result = runner.invoke(app, ["fit", str(tmp_path / "experiment.toml"), "--model",
                                  str(tmp_path / "model.toml"), "--out", str(out),
-                                 "--starts", "1"])
+                                 "--starts", "1", "--two-stage", "free"])
     assert result.exit_code == 0, result.output
     assert "warning: the two-stage analysis was skipped" in result.output
     assert "3 fitted parameters but only 3 data points" in result.output
