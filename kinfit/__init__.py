@@ -34,7 +34,7 @@ _EXPORTS = {
     "residuals": "numerics.problem",
     "log_likelihood": "estimation.likelihood",
     "fit": "estimation.least_squares",
-    "FitResult": "estimation.least_squares",
+    "FitResult": "estimation.fit_result",
     "rank": "analysis.ranking",
     "compare": "analysis.ranking",
     "Comparison": "analysis.ranking",
@@ -106,7 +106,7 @@ def __dir__():
 # Notebook display: IPython's HTML formatter learns the result types by name,
 # so results carry no rendering code and no layer below output imports it.
 _DISPLAYS = (
-    ("kinfit.estimation.least_squares", "FitResult", "fit_html"),
+    ("kinfit.estimation.fit_result", "FitResult", "fit_html"),
     ("kinfit.estimation.posterior", "Posterior", "posterior_html"),
     ("kinfit.analysis.ranking", "Comparison", "ranking_html"),
 )

@@ -57,7 +57,7 @@ from kinfit.core.errors import KinfitError
 if TYPE_CHECKING:
     from kinfit.analysis.criteria import ModelAverage
     from kinfit.analysis.nesting import NestedTest
-    from kinfit.estimation.least_squares import FitResult
+    from kinfit.estimation.fit_result import FitResult
 
 __all__ = ["Ranked", "Comparison", "compare", "rank"]
 

@@ -36,7 +36,7 @@ from kinfit.output.bundle import Bundle
 if TYPE_CHECKING:
     from kinfit.analysis.prediction import Prediction, PredictionBasis
     from kinfit.analysis.ranking import Comparison
-    from kinfit.estimation.least_squares import FitResult
+    from kinfit.estimation.fit_result import FitResult
     from kinfit.estimation.posterior import Posterior
     from kinfit.numerics.integrate import Trajectory
 

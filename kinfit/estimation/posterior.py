@@ -54,7 +54,8 @@ from kinfit.estimation.chains import (
     write_chain,
 )
 from kinfit.estimation.diagnostics import diagnose
-from kinfit.estimation.least_squares import FitResult, fit, parameter_unit
+from kinfit.estimation.fit_result import FitResult
+from kinfit.estimation.least_squares import fit, parameter_unit
 from kinfit.estimation.profile import profile_intervals
 from kinfit.estimation.sampler import (
     LogPosterior,

@@ -43,7 +43,7 @@ from kinfit.estimation.scale import ScaledProblem
 from kinfit.estimation.space import parameter_space
 
 if TYPE_CHECKING:
-    from kinfit.estimation.least_squares import FitResult
+    from kinfit.estimation.fit_result import FitResult
     from kinfit.estimation.space import ParameterSpace
 
 __all__ = ["ParameterProfile", "Profiles", "profile_intervals", "LEVELS"]

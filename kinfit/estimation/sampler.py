@@ -47,7 +47,7 @@ from kinfit.estimation.chains import ChainState
 from kinfit.numerics.problem import FAILED_RESIDUAL
 
 if TYPE_CHECKING:
-    from kinfit.estimation.least_squares import FitResult
+    from kinfit.estimation.fit_result import FitResult
     from kinfit.estimation.space import ParameterSpace
 
 __all__ = ["LogPosterior", "run_ensemble", "start_ball", "emcee_moves", "MOVES"]

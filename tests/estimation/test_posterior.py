@@ -14,7 +14,8 @@ from kinfit.core.errors import KinfitError
 from kinfit.estimation import posterior as posterior_module
 from kinfit.estimation import profile as profile_module
 from kinfit.estimation.chains import CHAIN_FILE, load_chain
-from kinfit.estimation.least_squares import ProblemSettings, fit
+from kinfit.estimation.fit_result import ProblemSettings
+from kinfit.estimation.least_squares import fit
 from kinfit.estimation.posterior import compare_intervals, sample
 from kinfit.estimation.space import parameter_space
 from kinfit.inputs.experiment import load_experiment

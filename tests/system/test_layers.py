@@ -103,9 +103,11 @@ def test_no_import_cycle_between_modules():
 
 
 def test_no_module_is_longer_than_700_lines():
-    # house rule: one compiled loop may reach 1,000 lines, nothing else passes 700
+    # house rule: nothing passes 700 lines, except one compiled integrator loop (in
+    # numerics/integrators/, which must stay whole), and that one under 1,000
     lengths = {p.relative_to(ROOT).as_posix(): len(p.read_text().splitlines())
                for p in (ROOT / "kinfit").rglob("*.py")}
     long = {name: n for name, n in lengths.items() if n > 700}
-    assert all(n <= 1000 for n in long.values()), long
+    assert all(name.startswith("kinfit/numerics/integrators/") and n < 1000
+               for name, n in long.items()), long
     assert len(long) <= 1, long
