@@ -28,6 +28,7 @@ from pathlib import Path
 from kinfit.core.errors import KinfitError
 from kinfit.core.formatting import CAUTIONS, format_interval, format_value
 from kinfit.core.schema import check_schema
+from kinfit.estimation.diagnostics import format_rhat
 from kinfit.output.bundle import write_bundle
 from kinfit.output.report_blocks import (
     Page,
@@ -332,6 +333,11 @@ def _residual_checks(folder, data):
                              "verdict"], rows)]
 
 
+def _rhat(x):
+    """R-hat with the digits that show why it passes or fails (see format_rhat)."""
+    return "–" if x is None else format_rhat(float(x))
+
+
 def _posterior(page, data):
     post = data["posterior"]
     if not post:
@@ -351,7 +357,7 @@ def _posterior(page, data):
             for name, p in post.get("parameters", {}).items()]
     blocks.append(_table(["parameter", "median", "mean", "sd", "68 %", "95 %", "unit"], rows))
     per = [[name, _num((diag.get("autocorr_time") or {}).get(name), 3),
-            _num((diag.get("ess") or {}).get(name), 4), _num((diag.get("rhat") or {}).get(name), 4)]
+            _num((diag.get("ess") or {}).get(name), 4), _rhat((diag.get("rhat") or {}).get(name))]
            for name in post.get("parameters", {})]
     if per:
         blocks.append(_table(["parameter", "autocorrelation time", "effective samples",
