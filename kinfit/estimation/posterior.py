@@ -77,7 +77,6 @@ if TYPE_CHECKING:
 
 __all__ = ["Posterior", "Settings", "RunBands", "sample", "summarise", "compare_intervals"]
 
-Z95 = 1.959963984540054          # scipy.stats.norm.ppf(0.975)
 # Intervals "disagree markedly" when one side of the profile or posterior interval
 # differs from the covariance interval's half width by more than this fraction
 # (kinfit's choice; no standard exists).
@@ -315,8 +314,10 @@ def compare_intervals(post):
     Returns
     -------
     list of dict
-        Keys ``name``, ``fit_value``, ``stderr``, ``covariance`` (value ±
-        1.96 SE), ``profile``, ``profile68``, ``profile_closed``,
+        Keys ``name``, ``fit_value``, ``stderr``, ``covariance`` (value ± q SE,
+        the fit's own 95 % interval: q from Student's t with N − p degrees of
+        freedom, or 1.96 when the noise is declared), ``profile``,
+        ``profile68``, ``profile_closed``,
         ``posterior`` (2.5–97.5 % percentiles) and ``flags`` (list of str).
         Flags: ``"not identifiable"`` when the profile does not close inside
         the bounds; ``"intervals disagree"`` when a side of the profile or
@@ -327,8 +328,8 @@ def compare_intervals(post):
     for name in post.names:
         value = post.fit.values.get(name)
         se = post.fit.stderr.get(name)
-        cov = [value - Z95 * se, value + Z95 * se] if se is not None and value is not None \
-            else None
+        pair = post.fit.interval(name)       # the fit's own 95 % interval (t or normal)
+        cov = list(pair) if pair is not None and se is not None else None
         prof = post.profiles.parameters.get(name) if post.profiles is not None else None
         p95 = list(prof.intervals[max(prof.intervals)]) if prof is not None else None
         p68 = list(prof.intervals[min(prof.intervals)]) if prof is not None else None
@@ -337,7 +338,7 @@ def compare_intervals(post):
         if prof is not None and not prof.closed:
             flags.append("not identifiable")
         if cov is not None and se > 0:
-            half = Z95 * se
+            half = (cov[1] - cov[0]) / 2.0
             sides = [(value - bayes[0]), (bayes[1] - value)]
             if p95 is not None:
                 sides += [value - p95[0] if p95[0] is not None else math.inf,

@@ -282,11 +282,15 @@ def fit_bundle(result, extra=None, extra_summary=None, provenance=None, basis=No
 
 
 def write_fit(out_dir, result, extra_files=None, extra_summary=None, provenance=None):
-    """Write a fit's outputs into `out_dir` (the files of :func:`fit_bundle`).
+    """Write a fit's outputs into `out_dir` (the files of :func:`fit_bundle`), with the
+    prediction basis in ``result.json`` that ``kinfit simulate --fit`` reads.
 
     Returns
     -------
     list of pathlib.Path
         The files written.
     """
-    return write_bundle(out_dir, fit_bundle(result, extra_files, extra_summary, provenance))
+    from kinfit.analysis.prediction import basis_from_fit
+
+    return write_bundle(out_dir, fit_bundle(result, extra_files, extra_summary, provenance,
+                                            basis=basis_from_fit(result)))

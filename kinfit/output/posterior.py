@@ -45,7 +45,7 @@ def format_posterior(post, cautions=True):
            f"{post.n_evaluations} evaluations in {post.elapsed:.1f} s", ""]
     out += _status_lines(diag)
     out += ["", "Parameters: posterior median ± sd, and 95 % intervals of three kinds",
-            "  (covariance = fit ± 1.96 SE; profile likelihood; posterior 2.5–97.5 %)"]
+            "  (covariance = the fit's 95 % interval; profile likelihood; posterior 2.5–97.5 %)"]
     rows = []
     for row in post.intervals:
         name = row["name"]

@@ -237,3 +237,13 @@ def test_signal_channels_get_no_concentration_bands(tmp_path):
     assert any("spectrometer signal channels have none" in w for w in post.warnings)
     files = posterior_bundle(post)
     assert "bands.png" not in files and "corner.png" in files
+
+
+def test_the_covariance_interval_beside_the_posterior_is_the_fits_own(line_posterior):
+    # one 95 % covariance interval everywhere: the posterior's table quotes the fit's
+    # (Student t with N − p degrees of freedom when the noise is estimated)
+    post, _ = line_posterior
+    for row in post.intervals:
+        pair = post.fit.interval(row["name"])
+        if pair is not None and row["stderr"] is not None:
+            assert row["covariance"] == pytest.approx(list(pair), rel=1e-12)

@@ -141,3 +141,16 @@ def test_write_fit(tmp_path, result):
     assert header == "run,time,A,P"
     assert not [p for p in (tmp_path / "out").iterdir() if ".part" in p.name]
     assert list(fit_bundle(result))[-3:] == ["parameters.csv", "points.csv", "result.json"]
+
+
+def test_write_fit_from_python_records_the_prediction_basis(tmp_path, result):
+    # a fit written from a notebook can start `kinfit simulate --fit result.json` too
+    import json
+
+    from kinfit.inputs.fit_basis import load_basis
+
+    write_fit(tmp_path / "out", result)
+    data = json.loads((tmp_path / "out" / "result.json").read_text())
+    assert data["prediction_basis"] is not None
+    basis = load_basis(tmp_path / "out" / "result.json", result.mechanism)
+    assert basis.values["k"] == pytest.approx(result.values["k"], rel=1e-12)
