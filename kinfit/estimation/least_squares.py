@@ -43,6 +43,7 @@ import numpy as np
 
 from kinfit.core.defaults import DEFAULT_STARTS
 from kinfit.core.errors import KinfitError
+from kinfit.core.formatting import covariance_interval, interval_quantile
 from kinfit.estimation.fit_result import FitResult, ProblemSettings
 from kinfit.estimation.levenberg_marquardt import local_fit
 from kinfit.estimation.likelihood import (
@@ -232,7 +233,9 @@ def _result(evaluator, u, success, message, n_starts, at_best, failed, settings)
     # Per-run warnings (kinfit.estimation.run_warnings): steps a run cannot start, a run
     # that carries the misfit, a reference temperature outside the runs.
     warnings += run_warnings(mech, exp, values, res)
-    warnings += rate_constant_warnings(mech, values, stderr, units)
+    dof = None if problem.sigma_known else max(res.size - count_parameters(problem), 1)
+    warnings += rate_constant_warnings(mech, values, stderr, units,
+                                       interval_quantile(0.95, dof))   # as FitResult.interval
     return FitResult(
         mechanism=mech, experiment=exp, values=values, stderr=stderr, units=units,
         roles=roles, free_names=scale.names, covariance=covariance, correlation=correlation,
@@ -335,14 +338,13 @@ def _fit_warnings(problem, values, at_bounds, n_starts, at_best, stats, signal_w
 
 # ------------------------------------------- rate constants the data barely pin down
 
-_Z95 = 1.959963984540054     # two-sided 95 % normal quantile (scipy.stats.norm.ppf(0.975))
-
-
-def rate_constant_warnings(mechanism, values, stderr, units):
+def rate_constant_warnings(mechanism, values, stderr, units, quantile=1.959963984540054):
     """Fitted rate constants whose 95 % interval includes zero or spans over a factor of ten.
 
     The interval is the one the reports show beside the standard error,
-    k ± 1.96 se (covariance, delta method). One that reaches zero means the
+    k ± q se (covariance, delta method; q from :meth:`FitResult.interval`'s rule:
+    Student's t with N − p degrees of freedom when the noise is estimated, the
+    normal 1.96 by default). One that reaches zero means the
     data do not show the step at all; one whose ends differ by more than a
     factor of ten (se/k above about 0.42) means they hardly measure it. Each
     warning names the rate constant and the step(s) it belongs to, and
@@ -354,6 +356,8 @@ def rate_constant_warnings(mechanism, values, stderr, units):
     mechanism : Mechanism
     values, stderr, units : dict of str
         Of the fit (see :class:`FitResult`).
+    quantile : float
+        q of the 95 % interval.
 
     Returns
     -------
@@ -365,7 +369,7 @@ def rate_constant_warnings(mechanism, values, stderr, units):
         if par.role != Role.RATE_CONSTANT or not par.vary or se is None or not se > 0:
             continue
         k = values[name]
-        lo, hi = k - _Z95 * se, k + _Z95 * se
+        lo, hi = covariance_interval(k, se, quantile)
         span = f"[{lo:.2g}, {hi:.2g}] {units.get(name) or ''}".rstrip()
         if lo <= 0:
             what = f"its 95 % interval {span} includes zero: the data do not show this step"
